@@ -1,0 +1,183 @@
+//! Command-line glue: arguments become a validated run configuration, then the library runs.
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+use anyhow::{Context, Result};
+use clap::{Args, Parser, Subcommand};
+
+use kerf::corpus::{DocStream, InputOptions};
+use kerf::model::{self, ModelInfo};
+use kerf::plan::{self, ResolvedPlan};
+use kerf::profile::Profile;
+use kerf::tokens::TokenCounter;
+
+mod cut;
+mod modelcmd;
+mod profilecmd;
+mod survey;
+
+#[derive(Parser)]
+#[command(
+    name = "kerf",
+    version,
+    about = "Plan how long documents are cut, embedded and pooled for windowed encoders"
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Read a model folder and report its limits.
+    Model(modelcmd::ModelArgs),
+    /// Census of a corpus against the model's window: tokens, overflow, long sentences.
+    Survey(survey::SurveyArgs),
+    /// Cut documents into chunks that fit the window; writes JSONL.
+    Cut(cut::CutArgs),
+    /// Check, show or create profiles.
+    #[command(subcommand)]
+    Profile(profilecmd::ProfileCmd),
+}
+
+/// Inputs shared by every command that reads a corpus.
+#[derive(Args, Clone)]
+pub struct InputArgs {
+    /// Files, folders (walked for .txt, .md, .jsonl) or `-` for standard input.
+    #[arg(required = true)]
+    pub paths: Vec<PathBuf>,
+    /// JSONL field holding the text.
+    #[arg(long, default_value = "text")]
+    pub text_field: String,
+    /// JSONL field holding the document id.
+    #[arg(long, default_value = "id")]
+    pub id_field: String,
+    /// Read standard input as JSONL instead of one document.
+    #[arg(long)]
+    pub stdin_jsonl: bool,
+    /// Replace invalid UTF-8 with U+FFFD instead of stopping.
+    #[arg(long)]
+    pub lossy: bool,
+}
+
+impl InputArgs {
+    fn open(&self) -> Result<DocStream> {
+        Ok(DocStream::open(
+            &self.paths,
+            InputOptions {
+                text_field: self.text_field.clone(),
+                id_field: self.id_field.clone(),
+                lossy: self.lossy,
+                stdin_jsonl: self.stdin_jsonl,
+            },
+        )?)
+    }
+}
+
+/// The plan a command runs under: profile plus model override.
+#[derive(Args, Clone)]
+pub struct PlanArgs {
+    /// Profile (TOML) with the plan.
+    #[arg(long, short = 'p')]
+    pub profile: Option<PathBuf>,
+    /// Model folder (overrides the profile's).
+    #[arg(long)]
+    pub model: Option<PathBuf>,
+}
+
+/// A profile resolved against its loaded model.
+pub struct Loaded {
+    pub info: ModelInfo,
+    pub counter: TokenCounter,
+    pub plan: ResolvedPlan,
+}
+
+/// Load the profile (or `fallback` when none is given), the model, and resolve.
+pub fn load_plan(args: &PlanArgs, fallback: impl FnOnce(&ModelInfo) -> Profile) -> Result<Loaded> {
+    let mut profile = match &args.profile {
+        Some(p) => Some(Profile::load(p)?),
+        None => None,
+    };
+    let dir = args
+        .model
+        .clone()
+        .or_else(|| profile.as_ref().and_then(|p| p.model.folder.clone()))
+        .unwrap_or_else(model::default_model_dir);
+    let (info, counter) = model::inspect(&dir)?;
+    let origin = args
+        .profile
+        .as_ref()
+        .map(|p| p.display().to_string())
+        .unwrap_or_else(|| "plan".into());
+    let profile = profile.take().unwrap_or_else(|| fallback(&info));
+    let plan = plan::resolve(&profile, &info, &counter, &origin)?;
+    Ok(Loaded {
+        info,
+        counter,
+        plan,
+    })
+}
+
+/// Print notices (skipped files, empty documents) to stderr.
+pub fn report_notices(notices: &[kerf::corpus::Notice]) {
+    for n in notices {
+        eprintln!("kerf: note: {}: {}", n.origin, n.message);
+    }
+}
+
+/// Write to stdout, or atomically to a file.
+pub fn open_output(out: Option<&Path>, force: bool) -> Result<Box<dyn OutputSink>> {
+    Ok(match out {
+        Some(p) => Box::new(kerf::output::AtomicFile::create(p, force)?),
+        None => Box::new(std::io::BufWriter::new(std::io::stdout().lock())),
+    })
+}
+
+/// An output that may need a final commit.
+pub trait OutputSink: Write {
+    /// Finish the output (rename a temporary file into place).
+    fn finish(self: Box<Self>) -> Result<()>;
+}
+
+impl OutputSink for kerf::output::AtomicFile {
+    fn finish(self: Box<Self>) -> Result<()> {
+        Ok((*self).commit()?)
+    }
+}
+
+impl<W: Write> OutputSink for std::io::BufWriter<W> {
+    fn finish(mut self: Box<Self>) -> Result<()> {
+        self.flush().context("writing to standard output")
+    }
+}
+
+fn is_broken_pipe(e: &anyhow::Error) -> bool {
+    e.chain().any(|c| {
+        c.downcast_ref::<std::io::Error>()
+            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
+}
+
+/// Entry point for the binary.
+pub fn run() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Model(a) => modelcmd::run(a),
+        Command::Survey(a) => survey::run(a),
+        Command::Cut(a) => cut::run(a),
+        Command::Profile(c) => profilecmd::run(c),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
+        Err(e) => {
+            let mut msg = format!("kerf: error: {e}");
+            for cause in e.chain().skip(1) {
+                msg.push_str(&format!("\n  caused by: {cause}"));
+            }
+            eprintln!("{msg}");
+            ExitCode::FAILURE
+        }
+    }
+}

@@ -1,0 +1,273 @@
+//! `kerf survey`: the census of a corpus against the window.
+use std::io::Write;
+
+use anyhow::Result;
+use clap::{Args, ValueEnum};
+
+use kerf::profile::{Boundary, Profile};
+use kerf::survey::{self, CorpusStats, DocStats};
+
+use super::{load_plan, report_notices, InputArgs, PlanArgs};
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum Order {
+    /// As read.
+    Input,
+    /// Most content tokens first.
+    Tokens,
+    /// Most tokens a truncating embed never sees first.
+    Unseen,
+    /// Largest unseen share first.
+    Share,
+    /// Longest sentence first.
+    Longest,
+    /// By document id.
+    Id,
+}
+
+#[derive(Args)]
+pub struct SurveyArgs {
+    #[command(flatten)]
+    pub input: InputArgs,
+    #[command(flatten)]
+    pub plan: PlanArgs,
+    /// Window in tokens when no profile is given (default: the model's configured length).
+    #[arg(long)]
+    pub window: Option<usize>,
+    /// Row order of the document table.
+    #[arg(long, value_enum, default_value = "input")]
+    pub order: Order,
+    /// Show only the first N documents of the table.
+    #[arg(long)]
+    pub top: Option<usize>,
+    /// Show only documents that do not fit one window.
+    #[arg(long)]
+    pub overflowing: bool,
+    /// Machine-readable output (JSON).
+    #[arg(long)]
+    pub json: bool,
+}
+
+fn sort_docs(docs: &mut [DocStats], order: Order) {
+    match order {
+        Order::Input => {}
+        Order::Tokens => docs.sort_by(|a, b| b.content_tokens.cmp(&a.content_tokens)),
+        Order::Unseen => docs.sort_by(|a, b| b.unseen_tokens.cmp(&a.unseen_tokens)),
+        Order::Share => docs.sort_by(|a, b| b.unseen_share.total_cmp(&a.unseen_share)),
+        Order::Longest => {
+            docs.sort_by(|a, b| b.longest_sentence_tokens.cmp(&a.longest_sentence_tokens))
+        }
+        Order::Id => docs.sort_by(|a, b| a.id.cmp(&b.id)),
+    }
+}
+
+/// Digits grouped by thousands.
+pub fn thousands(n: usize) -> String {
+    let s = n.to_string();
+    let mut out = String::new();
+    for (i, c) in s.chars().enumerate() {
+        if i > 0 && (s.len() - i) % 3 == 0 {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
+fn truncate_id(id: &str, width: usize) -> String {
+    if id.chars().count() <= width {
+        id.to_string()
+    } else {
+        let tail: String = id
+            .chars()
+            .rev()
+            .take(width - 1)
+            .collect::<Vec<_>>()
+            .into_iter()
+            .rev()
+            .collect();
+        format!("…{tail}")
+    }
+}
+
+fn write_human(
+    out: &mut impl Write,
+    stats: &CorpusStats,
+    docs: &[DocStats],
+    all: &[DocStats],
+    budget: usize,
+    header: &str,
+) -> Result<()> {
+    writeln!(out, "{header}")?;
+    writeln!(out)?;
+    let w = docs
+        .iter()
+        .map(|d| d.id.chars().count())
+        .max()
+        .unwrap_or(8)
+        .clamp(8, 40);
+    writeln!(
+        out,
+        "{:<w$}  {:>8}  {:>7}  {:>8}  {:>7}  {:>8}  {:>8}",
+        "document", "tokens", "windows", "unseen", "unseen%", "longest", "oversize"
+    )?;
+    for d in docs {
+        writeln!(
+            out,
+            "{:<w$}  {:>8}  {:>7}  {:>8}  {:>6.1}%  {:>8}  {:>8}",
+            truncate_id(&d.id, w),
+            thousands(d.content_tokens),
+            d.windows,
+            thousands(d.unseen_tokens),
+            100.0 * d.unseen_share,
+            d.longest_sentence_tokens,
+            d.oversize.len()
+        )?;
+    }
+    if docs.len() < all.len() {
+        writeln!(out, "({} of {} documents shown)", docs.len(), all.len())?;
+    }
+    writeln!(out)?;
+    writeln!(
+        out,
+        "corpus: {} documents ({} empty), {} words, {} sentences, {} paragraphs",
+        stats.documents,
+        stats.empty_documents,
+        thousands(stats.words),
+        thousands(stats.sentences),
+        thousands(stats.paragraphs)
+    )?;
+    writeln!(
+        out,
+        "tokens: {} content tokens in {} windows; {} documents overflow one window",
+        thousands(stats.content_tokens),
+        thousands(stats.windows),
+        stats.overflowing_documents
+    )?;
+    writeln!(
+        out,
+        "a truncating embed never sees {} tokens ({:.1}% of the corpus)",
+        thousands(stats.unseen_tokens),
+        100.0 * stats.unseen_share
+    )?;
+    writeln!(
+        out,
+        "document length in tokens: p50 {}  p90 {}  p99 {}  max {}",
+        thousands(stats.p50),
+        thousands(stats.p90),
+        thousands(stats.p99),
+        thousands(stats.max)
+    )?;
+    writeln!(out)?;
+    let top = stats
+        .histogram
+        .iter()
+        .map(|b| b.documents)
+        .max()
+        .unwrap_or(0)
+        .max(1);
+    let lw = stats
+        .histogram
+        .last()
+        .map_or(1, |b| thousands(b.high).len());
+    for b in &stats.histogram {
+        let bar =
+            "█".repeat((b.documents * 40).div_ceil(top).min(40) * usize::from(b.documents > 0));
+        writeln!(
+            out,
+            "{:>lw$} – {:<lw$} tokens │{bar} {}",
+            thousands(b.low),
+            thousands(b.high),
+            b.documents
+        )?;
+    }
+    if stats.oversize_sentences > 0 {
+        writeln!(out)?;
+        writeln!(
+            out,
+            "sentences longer than the {budget}-token budget ({}):",
+            stats.oversize_sentences
+        )?;
+        for d in all {
+            for o in &d.oversize {
+                writeln!(
+                    out,
+                    "  {}:{}  {} tokens  {}",
+                    d.id, o.line, o.tokens, o.preview
+                )?;
+            }
+        }
+    }
+    Ok(())
+}
+
+pub fn run(a: SurveyArgs) -> Result<()> {
+    let window = a.window;
+    let loaded = load_plan(&a.plan, |info| {
+        let mut p = Profile::default();
+        p.name = "survey".into();
+        p.cut.window = window.unwrap_or_else(|| info.default_window());
+        p.cut.boundary = Boundary::Sentence;
+        p
+    })?;
+    if a.plan.profile.is_some() && window.is_some() {
+        anyhow::bail!("give either --profile or --window, not both");
+    }
+    let mut stream = a.input.open()?;
+    let mut docs: Vec<DocStats> = Vec::new();
+    let (counter, plan) = (&loaded.counter, &loaded.plan);
+    kerf::process_in_order(
+        stream.by_ref().map(|r| r.map_err(anyhow::Error::from)),
+        64,
+        |doc| {
+            Ok(survey::doc_stats(
+                doc,
+                &survey::analyze(&doc.text, counter)?,
+                plan,
+            ))
+        },
+        |_, stats| {
+            docs.push(stats);
+            Ok(())
+        },
+    )?;
+    report_notices(&stream.notices);
+    let stats = survey::summarize(&docs, plan);
+    let mut out = std::io::BufWriter::new(std::io::stdout().lock());
+    if a.json {
+        let v = serde_json::json!({
+            "model": loaded.info,
+            "window": plan.window,
+            "budget": plan.budget(),
+            "specials": plan.specials,
+            "prefix_tokens": plan.prefix_tokens,
+            "corpus": stats,
+            "documents": docs,
+            "notices": stream.notices,
+        });
+        writeln!(out, "{}", serde_json::to_string_pretty(&v)?)?;
+    } else {
+        let mut shown: Vec<DocStats> = docs
+            .iter()
+            .filter(|d| !a.overflowing || d.unseen_tokens > 0)
+            .cloned()
+            .collect();
+        sort_docs(&mut shown, a.order);
+        if let Some(n) = a.top {
+            shown.truncate(n);
+        }
+        let header = format!(
+            "survey of {} documents · model {} · window {} tokens ({} for text after {} special{}) · position limit {}",
+            stats.documents,
+            loaded.info.dir.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default(),
+            plan.window,
+            plan.budget(),
+            plan.specials + plan.prefix_tokens,
+            if plan.prefix_tokens > 0 { " and prefix tokens" } else { " tokens" },
+            loaded.info.max_position_embeddings
+        );
+        write_human(&mut out, &stats, &shown, &docs, plan.budget(), &header)?;
+    }
+    out.flush()?;
+    Ok(())
+}

@@ -1,0 +1,3 @@
+//! Comparing plans: reference texts, ranking metrics, and scoring documents under a plan.
+pub mod metrics;
+pub mod refs;

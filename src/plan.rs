@@ -1,0 +1,110 @@
+//! A profile checked against a model: the token budget each chunk really has.
+//!
+//! The window in a profile counts every token of an encoder input; special tokens and the prefix
+//! come out of it before any text goes in. Resolving is where a window larger than the model's
+//! architecture, or an overlap that leaves no room for new text, is refused.
+use crate::model::ModelInfo;
+use crate::profile::{Boundary, Profile};
+use crate::split::CutPlan;
+use crate::tokens::TokenCounter;
+
+/// A profile whose numbers have been checked against a model.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ResolvedPlan {
+    /// The profile as written.
+    pub profile: Profile,
+    /// Tokens per encoder input, specials and prefix included.
+    pub window: usize,
+    /// Special tokens per input.
+    pub specials: usize,
+    /// Tokens the prefix takes.
+    pub prefix_tokens: usize,
+    /// What the splitter works with.
+    pub cut: CutPlan,
+}
+
+impl ResolvedPlan {
+    /// Content tokens a chunk may hold.
+    pub fn budget(&self) -> usize {
+        self.cut.budget_tokens
+    }
+    /// Tokens one encoder input of a chunk costs, specials and prefix included.
+    pub fn input_tokens(&self, content_tokens: usize) -> usize {
+        content_tokens + self.specials + self.prefix_tokens
+    }
+}
+
+/// Why a profile does not fit a model.
+#[derive(Debug, thiserror::Error)]
+#[error("{origin}: {message}")]
+pub struct PlanError {
+    /// The profile's name or file.
+    pub origin: String,
+    /// What does not fit.
+    pub message: String,
+}
+
+/// Check a profile against a model and compute the content budget.
+pub fn resolve(
+    profile: &Profile,
+    info: &ModelInfo,
+    counter: &TokenCounter,
+    origin: &str,
+) -> Result<ResolvedPlan, PlanError> {
+    let err = |message: String| {
+        Err(PlanError {
+            origin: origin.to_string(),
+            message,
+        })
+    };
+    let c = &profile.cut;
+    if c.window > info.max_position_embeddings {
+        return err(format!(
+            "[cut] window {} exceeds the model's limit of {} positions (config.json max_position_embeddings in {})",
+            c.window,
+            info.max_position_embeddings,
+            info.dir.display()
+        ));
+    }
+    let prefix_tokens = if c.prefix.is_empty() {
+        0
+    } else {
+        counter.count_content(&c.prefix).map_err(|e| PlanError {
+            origin: origin.into(),
+            message: e.to_string(),
+        })?
+    };
+    let specials = counter.specials_per_input();
+    let fixed = specials + prefix_tokens;
+    if c.window <= fixed {
+        return err(format!(
+            "[cut] window {} leaves no room for text: {specials} special tokens and {prefix_tokens} prefix tokens take {fixed}",
+            c.window
+        ));
+    }
+    let budget = c.window - fixed;
+    if c.boundary != Boundary::Head && c.overlap >= budget {
+        return err(format!(
+            "[cut] overlap {} must be smaller than the content budget of {budget} tokens (window {} - {specials} specials - {prefix_tokens} prefix)",
+            c.overlap, c.window
+        ));
+    }
+    if c.min_chunk >= budget {
+        return err(format!(
+            "[cut] min_chunk {} must be smaller than the content budget of {budget} tokens",
+            c.min_chunk
+        ));
+    }
+    Ok(ResolvedPlan {
+        profile: profile.clone(),
+        window: c.window,
+        specials,
+        prefix_tokens,
+        cut: CutPlan {
+            boundary: c.boundary,
+            budget_tokens: budget,
+            overlap_tokens: c.overlap,
+            min_chunk_tokens: c.min_chunk,
+        },
+    })
+}

@@ -1,0 +1,403 @@
+//! Profiles: the whole plan (model, window, boundary rule, overlap, pooling) as a TOML file.
+//!
+//! Parsing is strict (unknown keys are errors with line and column) and kept apart from loading
+//! from disk so tests never need files. Checks that need no model run in [`Profile::validate`];
+//! checks against the model's limits run when the plan is resolved in [`crate::plan`].
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+use crate::embed::{Precision, TokenPooling};
+use crate::pool::ChunkPooling;
+
+/// The profile schema this build reads and writes.
+pub const SCHEMA_VERSION: u32 = 1;
+
+/// Where chunk boundaries may fall.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, Hash)]
+#[serde(rename_all = "kebab-case")]
+pub enum Boundary {
+    /// Only the first window of each document: what a truncating encoder does.
+    Head,
+    /// Fixed token windows (cut at word starts where a word allows).
+    Token,
+    /// Whole sentences packed up to the budget.
+    #[default]
+    Sentence,
+    /// Whole paragraphs packed up to the budget, falling back to sentences, then words.
+    Paragraph,
+}
+
+impl Boundary {
+    /// Every rule, in the order a user would step through them.
+    pub const ALL: [Boundary; 4] = [
+        Boundary::Head,
+        Boundary::Token,
+        Boundary::Sentence,
+        Boundary::Paragraph,
+    ];
+    /// The profile spelling.
+    pub fn name(self) -> &'static str {
+        match self {
+            Boundary::Head => "head",
+            Boundary::Token => "token",
+            Boundary::Sentence => "sentence",
+            Boundary::Paragraph => "paragraph",
+        }
+    }
+}
+
+/// Errors from reading or checking a profile.
+#[derive(Debug, thiserror::Error)]
+pub enum ProfileError {
+    /// The file could not be read.
+    #[error("{path}: cannot read profile: {source}")]
+    Read {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    /// TOML syntax or an unknown/mistyped key (the message carries line and column).
+    #[error("{origin}: {message}")]
+    Parse { origin: String, message: String },
+    /// A value that cannot work.
+    #[error("{origin}: {message}")]
+    Invalid { origin: String, message: String },
+}
+
+/// `[model]`: which model folder to use.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ModelSection {
+    /// Model folder; absent means the default model fetched by scripts/fetch-model. Relative
+    /// paths are taken from the profile file's folder; `~/` is the home folder.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub folder: Option<PathBuf>,
+}
+
+/// `[cut]`: how documents become chunks.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CutSection {
+    /// Tokens per encoder input, special tokens and prefix included.
+    pub window: usize,
+    /// Where chunk boundaries may fall.
+    #[serde(default)]
+    pub boundary: Boundary,
+    /// Tokens each chunk shares with the one before (honoured at the boundary rule's level).
+    #[serde(default)]
+    pub overlap: usize,
+    /// A final chunk with fewer new tokens than this is merged into, or extended over, the one before.
+    #[serde(default)]
+    pub min_chunk: usize,
+    /// Text put before every chunk (some models expect one); its tokens count against the window.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub prefix: String,
+}
+
+impl Default for CutSection {
+    fn default() -> Self {
+        Self {
+            window: 256,
+            boundary: Boundary::Sentence,
+            overlap: 0,
+            min_chunk: 0,
+            prefix: String::new(),
+        }
+    }
+}
+
+/// `[pool]`: how token vectors become chunk vectors, and chunk vectors a document's.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PoolSection {
+    /// Token pooling inside a chunk.
+    #[serde(default)]
+    pub tokens: TokenPooling,
+    /// Chunk aggregation into a document score or vector.
+    #[serde(default)]
+    pub chunks: ChunkPooling,
+    /// Temperature of the soft-centroid weighting (ignored by the other aggregations).
+    #[serde(default = "default_temperature")]
+    pub temperature: f32,
+    /// Arithmetic of the encoder's forward pass.
+    #[serde(default)]
+    pub precision: Precision,
+}
+
+fn default_temperature() -> f32 {
+    0.1
+}
+
+impl Default for PoolSection {
+    fn default() -> Self {
+        Self {
+            tokens: TokenPooling::Mean,
+            chunks: ChunkPooling::Mean,
+            temperature: default_temperature(),
+            precision: Precision::F32,
+        }
+    }
+}
+
+/// A whole plan.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Profile {
+    /// Schema version; must equal [`SCHEMA_VERSION`].
+    pub schema: u32,
+    /// Short name shown in reports.
+    #[serde(default)]
+    pub name: String,
+    /// One line on what the plan is for.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub about: String,
+    /// Model folder.
+    #[serde(default)]
+    pub model: ModelSection,
+    /// Cutting rules.
+    pub cut: CutSection,
+    /// Pooling rules.
+    #[serde(default)]
+    pub pool: PoolSection,
+}
+
+impl Default for Profile {
+    fn default() -> Self {
+        Self {
+            schema: SCHEMA_VERSION,
+            name: "sentences-256".into(),
+            about: String::new(),
+            model: ModelSection::default(),
+            cut: CutSection::default(),
+            pool: PoolSection::default(),
+        }
+    }
+}
+
+impl Profile {
+    /// Parse and validate TOML text; `origin` names the source in messages.
+    pub fn from_toml_str(text: &str, origin: &str) -> Result<Self, ProfileError> {
+        // Read the schema first so an old or future file gets a message about its version, not
+        // about whichever key changed.
+        if let Ok(table) = text.parse::<toml::Table>() {
+            match table.get("schema") {
+                Some(toml::Value::Integer(v)) if *v != SCHEMA_VERSION as i64 => {
+                    return Err(ProfileError::Invalid {
+                        origin: origin.into(),
+                        message: format!(
+                            "profile schema {v} is not supported by this kerf (it reads schema {SCHEMA_VERSION})"
+                        ),
+                    })
+                }
+                None => {
+                    return Err(ProfileError::Invalid {
+                        origin: origin.into(),
+                        message: format!("missing `schema = {SCHEMA_VERSION}` at the top of the profile"),
+                    })
+                }
+                _ => {}
+            }
+        }
+        let profile: Profile = toml::from_str(text).map_err(|e| ProfileError::Parse {
+            origin: origin.into(),
+            message: describe_toml_error(text, &e),
+        })?;
+        profile.validate(origin)?;
+        Ok(profile)
+    }
+
+    /// Read, parse and validate a profile file. A relative model folder is resolved against the
+    /// profile's own folder.
+    pub fn load(path: &Path) -> Result<Self, ProfileError> {
+        let text = std::fs::read_to_string(path).map_err(|source| ProfileError::Read {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        let mut p = Self::from_toml_str(&text, &path.display().to_string())?;
+        if let Some(folder) = &p.model.folder {
+            p.model.folder = Some(resolve_folder(folder, path.parent()));
+        }
+        Ok(p)
+    }
+
+    /// Checks that need no model: sizes, ranges, names.
+    pub fn validate(&self, origin: &str) -> Result<(), ProfileError> {
+        let bad = |message: String| {
+            Err(ProfileError::Invalid {
+                origin: origin.into(),
+                message,
+            })
+        };
+        if self.schema != SCHEMA_VERSION {
+            return bad(format!(
+                "schema {} is not supported (expected {SCHEMA_VERSION})",
+                self.schema
+            ));
+        }
+        let c = &self.cut;
+        if c.window == 0 {
+            return bad("[cut] window must be at least 1 token".into());
+        }
+        if c.overlap >= c.window {
+            return bad(format!(
+                "[cut] overlap ({}) must be smaller than the window ({})",
+                c.overlap, c.window
+            ));
+        }
+        if c.min_chunk >= c.window {
+            return bad(format!(
+                "[cut] min_chunk ({}) must be smaller than the window ({})",
+                c.min_chunk, c.window
+            ));
+        }
+        if c.boundary == Boundary::Head && c.overlap > 0 {
+            return bad("[cut] overlap has no meaning with boundary = \"head\" (one chunk per document); set it to 0".into());
+        }
+        let t = self.pool.temperature;
+        if !(t.is_finite() && t > 0.0) {
+            return bad(format!(
+                "[pool] temperature must be a positive number, found {t}"
+            ));
+        }
+        Ok(())
+    }
+
+    /// The model folder this profile names, or the default one.
+    pub fn model_dir(&self) -> PathBuf {
+        self.model
+            .folder
+            .clone()
+            .unwrap_or_else(crate::model::default_model_dir)
+    }
+
+    /// Serialise as TOML (round-trips through [`Profile::from_toml_str`]).
+    pub fn to_toml(&self) -> String {
+        let body = toml::to_string_pretty(self).expect("a profile always serialises");
+        format!(
+            "# kerf profile: the whole plan for cutting, embedding and pooling a corpus.\n{body}"
+        )
+    }
+}
+
+/// Expand `~/` and make a relative folder relative to `base`.
+pub fn resolve_folder(folder: &Path, base: Option<&Path>) -> PathBuf {
+    if let Ok(rest) = folder.strip_prefix("~") {
+        if let Some(home) = std::env::var_os("HOME") {
+            return PathBuf::from(home).join(rest);
+        }
+    }
+    match base {
+        Some(b) if folder.is_relative() && !b.as_os_str().is_empty() => b.join(folder),
+        _ => folder.to_path_buf(),
+    }
+}
+
+/// A toml error as "line L, column C: message".
+fn describe_toml_error(text: &str, e: &toml::de::Error) -> String {
+    let msg = e.message().trim().to_string();
+    match e.span() {
+        Some(span) => {
+            let before = &text[..span.start.min(text.len())];
+            let line = before.matches('\n').count() + 1;
+            let col = before
+                .rsplit('\n')
+                .next()
+                .map(|l| l.chars().count())
+                .unwrap_or(0)
+                + 1;
+            format!("line {line}, column {col}: {msg}")
+        }
+        None => msg,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"
+schema = 1
+name = "t"
+[cut]
+window = 128
+boundary = "token"
+overlap = 32
+"#;
+
+    #[test]
+    fn parses_and_fills_defaults() {
+        let p = Profile::from_toml_str(GOOD, "good").unwrap();
+        assert_eq!(p.cut.window, 128);
+        assert_eq!(p.cut.boundary, Boundary::Token);
+        assert_eq!(p.cut.overlap, 32);
+        assert_eq!(p.pool.chunks, ChunkPooling::Mean);
+        assert_eq!(p.pool.tokens, TokenPooling::Mean);
+    }
+
+    #[test]
+    fn round_trips() {
+        let mut p = Profile::from_toml_str(GOOD, "good").unwrap();
+        p.cut.prefix = "passage: ".into();
+        p.model.folder = Some(PathBuf::from("/models/x"));
+        let again = Profile::from_toml_str(&p.to_toml(), "again").unwrap();
+        assert_eq!(p, again);
+    }
+
+    #[test]
+    fn unknown_key_names_line_and_column() {
+        let text = "schema = 1\n[cut]\nwindow = 128\nstrides = 3\n";
+        let e = Profile::from_toml_str(text, "p.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(e.starts_with("p.toml: line 4, column 1"), "{e}");
+        assert!(e.contains("strides"), "{e}");
+    }
+
+    #[test]
+    fn rejects_bad_values() {
+        let cases = [
+            (
+                "schema = 1\n[cut]\nwindow = 0\n",
+                "window must be at least 1",
+            ),
+            (
+                "schema = 1\n[cut]\nwindow = 64\noverlap = 64\n",
+                "overlap (64) must be smaller",
+            ),
+            (
+                "schema = 1\n[cut]\nwindow = 64\nmin_chunk = 70\n",
+                "min_chunk (70)",
+            ),
+            (
+                "schema = 2\n[cut]\nwindow = 64\n",
+                "schema 2 is not supported",
+            ),
+            ("[cut]\nwindow = 64\n", "missing `schema = 1`"),
+            (
+                "schema = 1\n[cut]\nwindow = 64\nboundary = \"words\"\n",
+                "unknown variant",
+            ),
+            (
+                "schema = 1\n[cut]\nwindow = 64\n[pool]\ntemperature = 0.0\n",
+                "temperature",
+            ),
+            ("schema = 1\n[cut]\nwindow = -3\n", "line 3"),
+        ];
+        for (text, want) in cases {
+            let e = Profile::from_toml_str(text, "x").unwrap_err().to_string();
+            assert!(e.contains(want), "{text:?} gave {e:?}, wanted {want:?}");
+        }
+    }
+
+    #[test]
+    fn relative_model_folder_follows_the_profile() {
+        assert_eq!(
+            resolve_folder(Path::new("m"), Some(Path::new("/p"))),
+            PathBuf::from("/p/m")
+        );
+        assert_eq!(
+            resolve_folder(Path::new("/abs"), Some(Path::new("/p"))),
+            PathBuf::from("/abs")
+        );
+    }
+}

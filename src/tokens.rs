@@ -1,0 +1,151 @@
+//! Counting tokens the way the encoder will see them.
+//!
+//! A model folder's tokenizer.json often carries its own truncation and padding (128 tokens for
+//! the default model). Left on, every count would silently stop at that length, which is exactly
+//! the blind spot kerf exists to show, so both are switched off here and the fact is recorded.
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+use tokenizers::Tokenizer;
+
+/// Errors from loading or running a tokenizer.
+#[derive(Debug, thiserror::Error)]
+pub enum TokensError {
+    /// tokenizer.json could not be read or parsed.
+    #[error("{path}: cannot load tokenizer: {reason}")]
+    Load { path: PathBuf, reason: String },
+    /// Encoding a text failed inside the tokenizer.
+    #[error("tokenizer failed on {what}: {reason}")]
+    Encode { what: String, reason: String },
+}
+
+/// What the tokenizer file itself would have done to every input, before kerf turned it off.
+#[derive(Debug, Clone, Default, PartialEq, Eq, serde::Serialize)]
+pub struct TokenizerDefaults {
+    /// Truncation length set in tokenizer.json, if any.
+    pub truncation_tokens: Option<usize>,
+    /// Padding set in tokenizer.json: a fixed length, or "longest".
+    pub padding: Option<String>,
+}
+
+/// Content tokens of one text: byte offsets into the text and which tokens begin a word.
+#[derive(Debug, Clone, Default)]
+pub struct Tokenized {
+    /// Byte range of each content token in the source text.
+    pub offsets: Vec<Range<usize>>,
+    /// `word_start[i]` is true when token i begins a pre-tokenizer word (a cut before it
+    /// re-encodes to the same tokens).
+    pub word_start: Vec<bool>,
+}
+
+impl Tokenized {
+    /// Number of content tokens.
+    pub fn len(&self) -> usize {
+        self.offsets.len()
+    }
+    /// True when the text has no tokens.
+    pub fn is_empty(&self) -> bool {
+        self.offsets.is_empty()
+    }
+}
+
+/// A tokenizer with truncation and padding off, plus the facts needed to budget a window.
+pub struct TokenCounter {
+    tokenizer: Tokenizer,
+    specials_per_input: usize,
+    defaults: TokenizerDefaults,
+    path: PathBuf,
+}
+
+impl TokenCounter {
+    /// Load tokenizer.json, switch off its truncation and padding, and measure the special
+    /// tokens its post-processor adds to every input (by encoding an empty text).
+    pub fn from_file(path: &Path) -> Result<Self, TokensError> {
+        let load_err = |reason: String| TokensError::Load {
+            path: path.to_path_buf(),
+            reason,
+        };
+        let mut tokenizer = Tokenizer::from_file(path).map_err(|e| load_err(e.to_string()))?;
+        let defaults = TokenizerDefaults {
+            truncation_tokens: tokenizer.get_truncation().map(|t| t.max_length),
+            padding: tokenizer.get_padding().map(|p| match p.strategy {
+                tokenizers::PaddingStrategy::Fixed(n) => format!("fixed {n}"),
+                tokenizers::PaddingStrategy::BatchLongest => "longest in batch".to_string(),
+            }),
+        };
+        tokenizer
+            .with_truncation(None)
+            .map_err(|e| load_err(e.to_string()))?;
+        tokenizer.with_padding(None);
+        let empty = tokenizer
+            .encode("", true)
+            .map_err(|e| load_err(format!("encoding an empty input failed: {e}")))?;
+        Ok(Self {
+            specials_per_input: empty.len(),
+            tokenizer,
+            defaults,
+            path: path.to_path_buf(),
+        })
+    }
+
+    /// Special tokens the post-processor adds to each input ([CLS] and [SEP] for BERT).
+    pub fn specials_per_input(&self) -> usize {
+        self.specials_per_input
+    }
+
+    /// Truncation and padding the file asked for (now disabled).
+    pub fn defaults(&self) -> &TokenizerDefaults {
+        &self.defaults
+    }
+
+    /// Vocabulary size including added tokens.
+    pub fn vocab_size(&self) -> usize {
+        self.tokenizer.get_vocab_size(true)
+    }
+
+    /// Path of the tokenizer file.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Content tokens of a text with byte offsets and word starts.
+    pub fn tokenize(&self, text: &str) -> Result<Tokenized, TokensError> {
+        let enc = self
+            .tokenizer
+            .encode(text, false)
+            .map_err(|e| TokensError::Encode {
+                what: format!("a text of {} bytes", text.len()),
+                reason: e.to_string(),
+            })?;
+        let words = enc.get_word_ids();
+        let mut offsets = Vec::with_capacity(enc.len());
+        let mut word_start = Vec::with_capacity(enc.len());
+        let mut prev_word: Option<u32> = None;
+        for (i, &(a, b)) in enc.get_offsets().iter().enumerate() {
+            offsets.push(a..b);
+            let w = words.get(i).copied().flatten();
+            word_start.push(i == 0 || w.is_none() || w != prev_word);
+            prev_word = w;
+        }
+        Ok(Tokenized {
+            offsets,
+            word_start,
+        })
+    }
+
+    /// Content tokens of a text (no specials).
+    pub fn count_content(&self, text: &str) -> Result<usize, TokensError> {
+        self.tokenizer
+            .encode(text, false)
+            .map(|e| e.len())
+            .map_err(|e| TokensError::Encode {
+                what: format!("{:.40?}", text),
+                reason: e.to_string(),
+            })
+    }
+
+    /// Tokens of a text as one encoder input, specials included.
+    pub fn count_input(&self, text: &str) -> Result<usize, TokensError> {
+        Ok(self.count_content(text)? + self.specials_per_input)
+    }
+}

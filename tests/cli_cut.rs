@@ -1,0 +1,284 @@
+//! End-to-end runs of the binary: survey and cut over demo-texts and over bad input.
+mod common;
+
+use common::{fails, kerf, kerf_in, ok};
+use kerf::records::ChunkRecord;
+
+fn records(jsonl: &str) -> Vec<ChunkRecord> {
+    jsonl
+        .lines()
+        .map(|l| serde_json::from_str(l).expect("each line is a chunk record"))
+        .collect()
+}
+
+#[test]
+fn cut_demo_texts_with_every_shipped_profile() {
+    common::model_dir();
+    let (_, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
+    for profile in [
+        "head-256",
+        "sentences-128",
+        "sentences-256",
+        "paragraphs-256-overlap",
+        "tokens-512",
+    ] {
+        let path = format!("profiles/{profile}.toml");
+        let out = ok(&kerf(&["cut", "--profile", &path, "demo-texts"]));
+        let recs = records(&out);
+        assert!(!recs.is_empty(), "{profile} wrote no chunks");
+        let window =
+            kerf::profile::Profile::load(std::path::Path::new(&common::repo().join(&path)))
+                .unwrap()
+                .cut
+                .window;
+        for r in &recs {
+            let src =
+                std::fs::read_to_string(common::repo().join("demo-texts").join(&r.doc)).unwrap();
+            assert_eq!(
+                &src[r.bytes[0]..r.bytes[1]],
+                r.text,
+                "{profile}: byte range of {}#{}",
+                r.doc,
+                r.chunk
+            );
+            let re = counter.count_input(&r.text).unwrap();
+            assert!(
+                re <= window,
+                "{profile}: {}#{} re-encodes to {re} > {window}",
+                r.doc,
+                r.chunk
+            );
+            assert_eq!(
+                re, r.tokens,
+                "{profile}: reported tokens of {}#{}",
+                r.doc, r.chunk
+            );
+        }
+        if profile == "head-256" {
+            let docs: std::collections::BTreeSet<_> = recs.iter().map(|r| &r.doc).collect();
+            assert_eq!(docs.len(), recs.len(), "head keeps one chunk per document");
+        }
+    }
+}
+
+#[test]
+fn cut_to_file_is_atomic_and_refuses_to_overwrite() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("chunks.jsonl");
+    let o = out.to_str().unwrap();
+    ok(&kerf(&[
+        "cut",
+        "-p",
+        "profiles/sentences-256.toml",
+        "demo-texts",
+        "--out",
+        o,
+    ]));
+    let first = std::fs::read(&out).unwrap();
+    let err = fails(&kerf(&[
+        "cut",
+        "-p",
+        "profiles/sentences-256.toml",
+        "demo-texts",
+        "--out",
+        o,
+    ]));
+    assert!(err.contains("already exists"), "{err}");
+    // A failing run (bad input after good input) leaves the old file untouched and no temp file.
+    let bad = dir.path().join("bad.txt");
+    std::fs::write(&bad, b"fine text\n\xff\xfe broken").unwrap();
+    let err = fails(&kerf(&[
+        "cut",
+        "-p",
+        "profiles/sentences-256.toml",
+        "demo-texts",
+        bad.to_str().unwrap(),
+        "--out",
+        o,
+        "--force",
+    ]));
+    assert!(err.contains("bad.txt: invalid UTF-8 at byte 10"), "{err}");
+    assert_eq!(std::fs::read(&out).unwrap(), first);
+    let leftovers: Vec<_> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    assert_eq!(
+        leftovers.len(),
+        2,
+        "only chunks.jsonl and bad.txt: {leftovers:?}"
+    );
+}
+
+#[test]
+fn bad_inputs_get_clear_errors_and_no_panic() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let p = common::repo().join("profiles/sentences-128.toml");
+    let p = p.to_str().unwrap();
+    // Invalid UTF-8: file and byte offset; --lossy goes through.
+    std::fs::write(d.join("latin1.txt"), b"caf\xe9 au lait").unwrap();
+    let err = fails(&kerf_in(d, &["survey", "latin1.txt"]));
+    assert!(err.contains("latin1.txt: invalid UTF-8 at byte 3"), "{err}");
+    ok(&kerf_in(d, &["survey", "--lossy", "latin1.txt"]));
+    // Binary files are skipped with a notice.
+    std::fs::write(d.join("blob.txt"), b"\x00\x01\x02PNG").unwrap();
+    let out = kerf_in(d, &["cut", "-p", p, "blob.txt"]);
+    ok(&out);
+    assert!(
+        String::from_utf8_lossy(&out.stderr).contains("binary"),
+        "binary notice"
+    );
+    // Empty and whitespace-only: reported, no chunks.
+    std::fs::write(d.join("empty.txt"), "").unwrap();
+    std::fs::write(d.join("blank.md"), " \n\t\n").unwrap();
+    let out = kerf_in(d, &["cut", "-p", p, "empty.txt", "blank.md"]);
+    assert!(ok(&out).is_empty());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("empty or whitespace-only"));
+    // A 50,000-character line with no spaces or punctuation; words beyond the word limit;
+    // CRLF; mixed scripts. All cut, all fit.
+    let long_line = "a".repeat(50_000);
+    let long_words = (0..50)
+        .map(|i| format!("{}{}", "pneumono".repeat(3 + i % 20), i))
+        .collect::<Vec<_>>()
+        .join(" ");
+    std::fs::write(d.join("longline.txt"), &long_line).unwrap();
+    std::fs::write(d.join("longwords.txt"), &long_words).unwrap();
+    std::fs::write(
+        d.join("crlf.txt"),
+        "First line.\r\nSecond line.\r\n\r\nNew paragraph here.\r\n",
+    )
+    .unwrap();
+    std::fs::write(
+        d.join("mixed.txt"),
+        "東京駅の北口で会いましょう。 مرحبا بالعالم. Family: 👩‍👩‍👧‍👦 and 🇫🇷 flags. Ünïcödé.",
+    )
+    .unwrap();
+    for f in ["longline.txt", "longwords.txt", "crlf.txt", "mixed.txt"] {
+        let recs = records(&ok(&kerf_in(d, &["cut", "-p", p, f])));
+        assert!(!recs.is_empty(), "{f}");
+        assert!(recs.iter().all(|r| r.tokens <= 128), "{f}");
+    }
+    // Missing model folder names the fetch command.
+    let err = fails(&kerf_in(
+        d,
+        &["survey", "--model", "/nonexistent/model", "crlf.txt"],
+    ));
+    assert!(err.contains("scripts/fetch-model"), "{err}");
+    // Malformed profile: file, line and column.
+    std::fs::write(
+        d.join("bad.toml"),
+        "schema = 1\n[cut]\nwindow = 128\nstride = 9\n",
+    )
+    .unwrap();
+    let err = fails(&kerf_in(d, &["cut", "-p", "bad.toml", "crlf.txt"]));
+    assert!(
+        err.contains("bad.toml: line 4, column 1") && err.contains("stride"),
+        "{err}"
+    );
+    // Window beyond the model's position limit.
+    std::fs::write(d.join("big.toml"), "schema = 1\n[cut]\nwindow = 1024\n").unwrap();
+    let err = fails(&kerf_in(d, &["profile", "check", "big.toml"]));
+    assert!(err.contains("exceeds the model's limit of 512"), "{err}");
+    // Missing input path.
+    let err = fails(&kerf_in(d, &["survey", "nope.txt"]));
+    assert!(err.contains("nope.txt: no such file or folder"), "{err}");
+}
+
+#[test]
+fn survey_reports_overflow_and_json() {
+    let out = ok(&kerf(&["survey", "demo-texts", "--json"]));
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let corpus = &v["corpus"];
+    assert!(corpus["documents"].as_u64().unwrap() >= 8);
+    assert_eq!(v["window"], 256);
+    assert_eq!(v["budget"], 254);
+    assert!(corpus["unseen_tokens"].as_u64().unwrap() > 0);
+    // The demo corpus holds a run-on sentence longer than 512 tokens.
+    assert!(
+        corpus["longest_sentence_tokens"].as_u64().unwrap() > 512,
+        "{corpus}"
+    );
+    let docs = v["documents"].as_array().unwrap();
+    let sum: u64 = docs
+        .iter()
+        .map(|d| d["content_tokens"].as_u64().unwrap())
+        .sum();
+    assert_eq!(sum, corpus["content_tokens"].as_u64().unwrap());
+    for d in docs {
+        let (n, u) = (
+            d["content_tokens"].as_u64().unwrap(),
+            d["unseen_tokens"].as_u64().unwrap(),
+        );
+        assert_eq!(u, n.saturating_sub(254), "{}", d["id"]);
+    }
+    let human = ok(&kerf(&[
+        "survey",
+        "demo-texts",
+        "--order",
+        "unseen",
+        "--top",
+        "3",
+    ]));
+    assert!(human.contains("a truncating embed never sees"), "{human}");
+    assert!(human.contains("(3 of"), "{human}");
+    assert!(
+        human.contains("sentences longer than the 254-token budget"),
+        "{human}"
+    );
+    // Piped into a closed reader is not an error.
+    let status = std::process::Command::new("bash")
+        .arg("-c")
+        .arg(format!(
+            "set -o pipefail; {} survey demo-texts | head -1 >/dev/null",
+            env!("CARGO_BIN_EXE_kerf")
+        ))
+        .current_dir(common::repo())
+        .status()
+        .unwrap();
+    assert!(status.success());
+}
+
+#[test]
+fn stdin_and_jsonl() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("docs.jsonl");
+    std::fs::write(
+        &f,
+        "{\"doc_id\":\"a\",\"body\":\"One. Two.\"}\n{\"doc_id\":\"b\",\"body\":\"Three.\"}\n",
+    )
+    .unwrap();
+    let out = ok(&kerf(&[
+        "cut",
+        "-p",
+        "profiles/sentences-128.toml",
+        "--text-field",
+        "body",
+        "--id-field",
+        "doc_id",
+        f.to_str().unwrap(),
+    ]));
+    let recs = records(&out);
+    assert_eq!(
+        recs.iter().map(|r| r.doc.as_str()).collect::<Vec<_>>(),
+        ["a", "b"]
+    );
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_kerf"))
+        .args(["survey", "--json", "-"])
+        .current_dir(common::repo())
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    use std::io::Write;
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(b"A short note from standard input.")
+        .unwrap();
+    let out = child.wait_with_output().unwrap();
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["documents"][0]["id"], "stdin");
+    assert_eq!(v["documents"][0]["content_tokens"], 7);
+}

@@ -1,0 +1,70 @@
+//! Helpers shared by the integration tests.
+#![allow(dead_code)]
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// The default model folder; fails loudly (never skips) when it has not been fetched.
+pub fn model_dir() -> PathBuf {
+    let dir = kerf::model::default_model_dir();
+    assert!(
+        dir.join("model.safetensors").is_file(),
+        "model not found at {}: run scripts/fetch-model first",
+        dir.display()
+    );
+    dir
+}
+
+/// A cached test-data file; fails loudly when scripts/fetch-testdata has not been run.
+pub fn testdata(rel: &str) -> PathBuf {
+    let p = kerf::model::kerf_home().join("testdata").join(rel);
+    assert!(
+        p.exists(),
+        "test data {} missing: run scripts/fetch-testdata first",
+        p.display()
+    );
+    p
+}
+
+/// The repository root.
+pub fn repo() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// Run the kerf binary with arguments in a folder.
+pub fn kerf_in(dir: &Path, args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_kerf"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("kerf runs")
+}
+
+/// Run the kerf binary from the repository root.
+pub fn kerf(args: &[&str]) -> Output {
+    kerf_in(&repo(), args)
+}
+
+/// Stdout of a successful run; panics with stderr otherwise.
+pub fn ok(out: &Output) -> String {
+    assert!(
+        out.status.success(),
+        "kerf failed ({:?})\nstdout:\n{}\nstderr:\n{}",
+        out.status.code(),
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout.clone()).expect("utf-8 stdout")
+}
+
+/// Stderr of a failed run; panics if it succeeded or panicked.
+pub fn fails(out: &Output) -> String {
+    let err = String::from_utf8_lossy(&out.stderr).into_owned();
+    assert_eq!(
+        out.status.code(),
+        Some(1),
+        "expected exit 1, got {:?}; stderr:\n{err}",
+        out.status.code()
+    );
+    assert!(!err.contains("panicked"), "kerf panicked:\n{err}");
+    err
+}

@@ -1,0 +1,228 @@
+//! Invariants of the splitter with the real model tokenizer, over random texts (proptest).
+//!
+//! The guarantee kerf makes: every chunk, re-encoded on its own with the model's tokenizer and
+//! its special tokens (and the profile's prefix), fits the window; the reported token count is
+//! exactly what re-encoding gives; chunks cover the document in order with no gap; overlap is
+//! the shared token run, never more than asked.
+mod common;
+
+use std::sync::OnceLock;
+
+use kerf::model;
+use kerf::plan::{self, ResolvedPlan};
+use kerf::profile::{Boundary, Profile};
+use kerf::split::{self, Chunk};
+use kerf::survey;
+use kerf::tokens::TokenCounter;
+use proptest::prelude::*;
+
+fn counter() -> &'static TokenCounter {
+    static C: OnceLock<TokenCounter> = OnceLock::new();
+    C.get_or_init(|| model::inspect(&common::model_dir()).expect("model loads").1)
+}
+
+fn resolved(
+    boundary: Boundary,
+    window: usize,
+    overlap: usize,
+    min_chunk: usize,
+    prefix: &str,
+) -> ResolvedPlan {
+    let (info, c) = model::inspect(&common::model_dir()).unwrap();
+    let mut p = Profile::default();
+    p.cut.window = window;
+    p.cut.boundary = boundary;
+    p.cut.overlap = if boundary == Boundary::Head {
+        0
+    } else {
+        overlap
+    };
+    p.cut.min_chunk = min_chunk;
+    p.cut.prefix = prefix.to_string();
+    plan::resolve(&p, &info, &c, "prop").unwrap()
+}
+
+const PIECES: &[&str] = &[
+    "the",
+    "valve",
+    "inspection",
+    "was",
+    "completed",
+    "No.",
+    "4",
+    "3.5",
+    "mm",
+    "e.g.",
+    "Mr.",
+    "J.",
+    "T.",
+    "Abernethy",
+    "said",
+    "\"Stop.\"",
+    "(see",
+    "Fig.",
+    "2)",
+    "…",
+    "well",
+    "and",
+    "then",
+    "—",
+    "unbelievably",
+    "hyperextraordinarilyunprecedentedcircumnavigational",
+    "naïve",
+    "café",
+    "°C",
+    "東京駅",
+    "の",
+    "北口",
+    "مرحبا",
+    "بالعالم",
+    "👩‍🔧",
+    "🚂",
+    "x",
+    ".",
+    ",",
+    ";",
+    "!",
+    "?",
+];
+const SEPS: &[&str] = &[
+    " ",
+    " ",
+    " ",
+    " ",
+    "\n",
+    "\n\n",
+    "\r\n",
+    "  ",
+    "\n\n# Heading\n\n",
+    "\n- ",
+    "\n1. ",
+];
+
+fn text_strategy() -> impl Strategy<Value = String> {
+    prop::collection::vec(
+        (prop::sample::select(PIECES), prop::sample::select(SEPS)),
+        0..220,
+    )
+    .prop_map(|v| {
+        let mut s = String::new();
+        for (w, sep) in v {
+            s.push_str(w);
+            s.push_str(sep);
+        }
+        s
+    })
+}
+
+fn check(text: &str, chunks: &[Chunk], plan: &ResolvedPlan) -> Result<(), TestCaseError> {
+    let c = counter();
+    let an = c.tokenize(text).unwrap();
+    let n = an.len();
+    let prefix = &plan.profile.cut.prefix;
+    for (i, ch) in chunks.iter().enumerate() {
+        let piece = &text[ch.byte_range.clone()];
+        let input = format!("{prefix}{piece}");
+        let re = c.count_input(&input).unwrap();
+        prop_assert!(
+            re <= plan.window,
+            "chunk {i} re-encodes to {re} > window {}: {piece:?}",
+            plan.window
+        );
+        prop_assert_eq!(
+            c.count_content(piece).unwrap(),
+            ch.content_tokens,
+            "reported count of chunk {} {:?}",
+            i,
+            piece
+        );
+        prop_assert_eq!(ch.index, i);
+        prop_assert!(!ch.token_range.is_empty());
+        if i == 0 {
+            prop_assert_eq!(ch.token_range.start, 0);
+        } else {
+            let prev = &chunks[i - 1];
+            prop_assert!(
+                ch.token_range.start > prev.token_range.start,
+                "chunks advance"
+            );
+            prop_assert!(
+                ch.token_range.start <= prev.token_range.end,
+                "no gap between chunks {} and {}",
+                i - 1,
+                i
+            );
+            prop_assert_eq!(
+                ch.overlap_tokens,
+                prev.token_range.end - ch.token_range.start
+            );
+            let last = i == chunks.len() - 1;
+            if !last || plan.cut.min_chunk_tokens == 0 {
+                prop_assert!(
+                    ch.overlap_tokens <= plan.cut.overlap_tokens,
+                    "overlap {} > asked {}",
+                    ch.overlap_tokens,
+                    plan.cut.overlap_tokens
+                );
+            }
+        }
+    }
+    if plan.cut.boundary == Boundary::Head {
+        prop_assert!(chunks.len() <= 1);
+    } else if n > 0 {
+        prop_assert_eq!(
+            chunks.last().unwrap().token_range.end,
+            n,
+            "chunks reach the end"
+        );
+    } else {
+        prop_assert!(chunks.is_empty());
+    }
+    Ok(())
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 160, .. ProptestConfig::default() })]
+
+    #[test]
+    fn chunks_fit_cover_and_overlap(
+        text in text_strategy(),
+        boundary in prop::sample::select(Boundary::ALL.to_vec()),
+        window in 6usize..90,
+        overlap_frac in 0.0f64..0.6,
+        min_frac in 0.0f64..0.5,
+        with_prefix in any::<bool>(),
+    ) {
+        let prefix = if with_prefix { "passage: " } else { "" };
+        let fixed = 2 + if with_prefix { 3 } else { 0 };
+        let window = window.max(fixed + 2);
+        let budget = window - fixed;
+        let overlap = ((budget as f64) * overlap_frac) as usize;
+        let min_chunk = ((budget as f64) * min_frac) as usize;
+        let plan = resolved(boundary, window, overlap.min(budget - 1), min_chunk.min(budget - 1), prefix);
+        let an = survey::analyze(&text, counter()).unwrap();
+        let recount = |t: &str| counter().count_content(t).unwrap();
+        let chunks = split::cut(&text, &an.tokens, &an.segments, &plan.cut, &recount);
+        check(&text, &chunks, &plan)?;
+    }
+}
+
+/// Token windows take the largest run of whole words that fits the asked overlap.
+#[test]
+fn token_overlap_is_exact_on_short_words() {
+    let text = (0..400)
+        .map(|i| format!("w{}", i % 10))
+        .collect::<Vec<_>>()
+        .join(" ");
+    // "w3" is one word of two tokens here or one; whatever it is, each word has the same count.
+    let plan = resolved(Boundary::Token, 66, 16, 0, "");
+    let an = survey::analyze(&text, counter()).unwrap();
+    let chunks = split::cut(&text, &an.tokens, &an.segments, &plan.cut, &|t| {
+        counter().count_content(t).unwrap()
+    });
+    let per_word = counter().count_content("w3").unwrap();
+    assert!(chunks.len() > 3);
+    for c in &chunks[1..] {
+        assert_eq!(c.overlap_tokens, 16 / per_word * per_word, "{c:?}");
+    }
+}
