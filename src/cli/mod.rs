@@ -13,6 +13,7 @@ use kerf::profile::Profile;
 use kerf::tokens::TokenCounter;
 
 mod cut;
+mod explore;
 mod modelcmd;
 mod profilecmd;
 mod survey;
@@ -39,6 +40,8 @@ enum Command {
     /// Check, show or create profiles.
     #[command(subcommand)]
     Profile(profilecmd::ProfileCmd),
+    /// Explore plans live in the terminal: budgets, chunk boundaries, similarity.
+    Explore(explore::ExploreArgs),
 }
 
 /// Inputs shared by every command that reads a corpus.
@@ -167,6 +170,7 @@ pub fn run() -> ExitCode {
         Command::Survey(a) => survey::run(a),
         Command::Cut(a) => cut::run(a),
         Command::Profile(c) => profilecmd::run(c),
+        Command::Explore(a) => explore::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

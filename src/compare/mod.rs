@@ -1,3 +1,4 @@
 //! Comparing plans: reference texts, ranking metrics, and scoring documents under a plan.
+pub mod engine;
 pub mod metrics;
 pub mod refs;

@@ -1,0 +1,211 @@
+//! Scoring a corpus under a plan: cut, embed (through whatever embedding function the caller
+//! gives, usually the cache in front of the encoder), aggregate, rank, measure.
+//!
+//! Everything here is plain data in, plain data out, so the CLI, the sweep and the terminal UI
+//! share it and tests can run it with a model-free embedder.
+use std::collections::HashSet;
+
+use rayon::prelude::*;
+use serde::Serialize;
+
+use super::metrics::{self, Summary};
+use super::refs::Reference;
+use crate::corpus::Document;
+use crate::plan::ResolvedPlan;
+use crate::pool::{self, ChunkPooling};
+use crate::split::{self, Chunk};
+use crate::survey::{self, Analysis};
+use crate::tokens::{TokenCounter, TokensError};
+
+/// A corpus held in memory with each document analysed once.
+pub struct Corpus {
+    /// Documents in input order.
+    pub docs: Vec<Document>,
+    /// Tokens and segments of each document.
+    pub analyses: Vec<Analysis>,
+}
+
+impl Corpus {
+    /// Analyse documents in parallel.
+    pub fn new(docs: Vec<Document>, counter: &TokenCounter) -> Result<Self, TokensError> {
+        let analyses = docs.par_iter().map(|d| survey::analyze(&d.text, counter)).collect::<Result<Vec<_>, _>>()?;
+        Ok(Self { docs, analyses })
+    }
+    /// Document ids.
+    pub fn ids(&self) -> HashSet<String> {
+        self.docs.iter().map(|d| d.id.clone()).collect()
+    }
+    /// Total content tokens.
+    pub fn content_tokens(&self) -> usize {
+        self.analyses.iter().map(|a| a.tokens.len()).sum()
+    }
+}
+
+/// Cut every document of a corpus under a plan (in parallel).
+pub fn cut_corpus(corpus: &Corpus, plan: &ResolvedPlan, counter: &TokenCounter) -> Vec<Vec<Chunk>> {
+    let recount = |t: &str| counter.count_content(t).unwrap_or(usize::MAX);
+    corpus
+        .docs
+        .par_iter()
+        .zip(&corpus.analyses)
+        .map(|(d, a)| split::cut(&d.text, &a.tokens, &a.segments, &plan.cut, &recount))
+        .collect()
+}
+
+/// The encoder input of a chunk: prefix then text.
+pub fn chunk_inputs(corpus: &Corpus, chunks: &[Vec<Chunk>], prefix: &str) -> Vec<String> {
+    corpus
+        .docs
+        .iter()
+        .zip(chunks)
+        .flat_map(|(d, cs)| cs.iter().map(move |c| format!("{prefix}{}", &d.text[c.byte_range.clone()])))
+        .collect()
+}
+
+/// Split a flat list of chunk vectors back into per-document lists.
+pub fn unflatten(chunks: &[Vec<Chunk>], mut flat: Vec<Vec<f32>>) -> Vec<Vec<Vec<f32>>> {
+    let mut out = Vec::with_capacity(chunks.len());
+    let mut rest = flat.drain(..);
+    for cs in chunks {
+        out.push(rest.by_ref().take(cs.len()).collect());
+    }
+    out
+}
+
+/// Tokens each chunk adds beyond its overlap with the previous one.
+pub fn new_tokens(chunks: &[Chunk]) -> Vec<usize> {
+    chunks.iter().map(|c| c.content_tokens.saturating_sub(c.overlap_tokens)).collect()
+}
+
+/// One document's score for one reference.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct DocScore {
+    /// Index of the document in the corpus.
+    pub doc: usize,
+    /// Score (cosine for vector aggregations; max or sum of chunk cosines for scorings).
+    pub score: f32,
+    /// Index of the chunk with the highest cosine.
+    pub best_chunk: usize,
+}
+
+/// Scores of every document for every reference, each reference's list best first (ties by
+/// document id descending, as trec_eval orders them). Documents without chunks are left out.
+pub fn score_all(
+    corpus: &Corpus,
+    refs: &[Vec<f32>],
+    chunk_vectors: &[Vec<Vec<f32>>],
+    chunks: &[Vec<Chunk>],
+    how: ChunkPooling,
+    temperature: f32,
+) -> Vec<Vec<DocScore>> {
+    let doc_vecs: Vec<Option<Vec<f32>>> = chunk_vectors
+        .iter()
+        .zip(chunks)
+        .map(|(vs, cs)| {
+            let views: Vec<&[f32]> = vs.iter().map(|v| v.as_slice()).collect();
+            pool::doc_vector(how, &views, &new_tokens(cs), temperature)
+        })
+        .collect();
+    refs.par_iter()
+        .map(|q| {
+            let mut scores: Vec<DocScore> = chunk_vectors
+                .iter()
+                .enumerate()
+                .filter(|(_, vs)| !vs.is_empty())
+                .map(|(d, vs)| {
+                    let cos: Vec<f32> = vs.iter().map(|v| pool::cosine(q, v)).collect();
+                    let best_chunk = cos.iter().enumerate().fold(0, |b, (i, &s)| if s > cos[b] { i } else { b });
+                    let score = match how {
+                        ChunkPooling::Best => cos[best_chunk],
+                        ChunkPooling::Sum => cos.iter().sum(),
+                        _ => doc_vecs[d].as_ref().map_or(0.0, |dv| pool::cosine(q, dv)),
+                    };
+                    DocScore { doc: d, score, best_chunk }
+                })
+                .collect();
+            scores.sort_by(|a, b| {
+                b.score.total_cmp(&a.score).then_with(|| corpus.docs[b.doc].id.cmp(&corpus.docs[a.doc].id))
+            });
+            scores
+        })
+        .collect()
+}
+
+/// Ranking metrics of a plan over the references that name expected documents.
+pub fn summarize(corpus: &Corpus, refs: &[Reference], scores: &[Vec<DocScore>]) -> Summary {
+    let rankings: Vec<Vec<String>> =
+        scores.iter().map(|s| s.iter().map(|d| corpus.docs[d.doc].id.clone()).collect()).collect();
+    metrics::summarize(rankings.iter().zip(refs).map(|(r, q)| (r.as_slice(), &q.expect)))
+}
+
+/// Mean score of expected documents over references with expectations.
+pub fn mean_expected_score(corpus: &Corpus, refs: &[Reference], scores: &[Vec<DocScore>]) -> Option<f64> {
+    let mut total = 0.0;
+    let mut n = 0usize;
+    for (r, s) in refs.iter().zip(scores) {
+        for d in s.iter().filter(|d| r.expect.get(&corpus.docs[d.doc].id).is_some_and(|&g| g > 0)) {
+            total += d.score as f64;
+            n += 1;
+        }
+    }
+    (n > 0).then(|| total / n as f64)
+}
+
+/// Kendall's tau-b between two plans' scores for one reference, over documents both scored.
+pub fn tau_between(a: &[DocScore], b: &[DocScore]) -> f64 {
+    let mut by_doc = std::collections::HashMap::new();
+    for s in b {
+        by_doc.insert(s.doc, s.score as f64);
+    }
+    let (mut xa, mut xb) = (Vec::new(), Vec::new());
+    for s in a {
+        if let Some(&o) = by_doc.get(&s.doc) {
+            xa.push(s.score as f64);
+            xb.push(o);
+        }
+    }
+    metrics::kendall_tau_b(&xa, &xb)
+}
+
+/// Rank (1-based) of a document in a reference's list.
+pub fn rank_of(scores: &[DocScore], doc: usize) -> Option<usize> {
+    scores.iter().position(|s| s.doc == doc).map(|p| p + 1)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::embed::{Embedder, HashEmbedder};
+
+    #[test]
+    fn scoring_with_a_hash_embedder_finds_the_matching_document() {
+        // Model-free: two chunks per document from a toy word tokenizer is not needed; use
+        // ready-made chunk vectors from the hash embedder.
+        let e = HashEmbedder { dim: 64 };
+        let docs = vec![
+            Document { id: "boiler".into(), origin: "t".into(), text: String::new() },
+            Document { id: "timetable".into(), origin: "t".into(), text: String::new() },
+        ];
+        let corpus = Corpus { docs, analyses: vec![] };
+        let v = |t: &str| e.embed(&[t]).unwrap().remove(0);
+        let chunk_vectors = vec![
+            vec![v("boiler tubes replaced"), v("pressure test passed at 180 psi")],
+            vec![v("summer timetable trains every hour"), v("fares for children")],
+        ];
+        let mk = |n: usize| (0..n).map(|i| Chunk { index: i, byte_range: 0..0, token_range: 0..1, content_tokens: 10, overlap_tokens: 0, sentence_range: 0..0 }).collect::<Vec<_>>();
+        let chunks = vec![mk(2), mk(2)];
+        let q = vec![v("what pressure was the boiler test")];
+        // Per-dimension max of signed hash features is not a similarity-preserving summary, so
+        // it is left out of this check (it is covered by the pool module's own cases).
+        for how in ChunkPooling::ALL.into_iter().filter(|h| *h != ChunkPooling::DimMax) {
+            let s = score_all(&corpus, &q, &chunk_vectors, &chunks, how, 0.1);
+            assert_eq!(s[0][0].doc, 0, "{how:?}");
+        }
+        let s = score_all(&corpus, &q, &chunk_vectors, &chunks, ChunkPooling::Best, 0.1);
+        assert_eq!(s[0][0].best_chunk, 1);
+        let refs = vec![Reference { id: "q".into(), text: "x".into(), prefix: String::new(), kind: "question".into(), expect: [("boiler".to_string(), 1)].into() }];
+        assert_eq!(summarize(&corpus, &refs, &s).mrr_at_10, 1.0);
+        assert_eq!(rank_of(&s[0], 1), Some(2));
+        assert_eq!(tau_between(&s[0], &s[0]), 1.0);
+    }
+}

@@ -1,0 +1,1 @@
+//! The planning terminal UI's state and rendering (placeholder until the UI lands).
