@@ -28,7 +28,10 @@ pub struct Corpus {
 impl Corpus {
     /// Analyse documents in parallel.
     pub fn new(docs: Vec<Document>, counter: &TokenCounter) -> Result<Self, TokensError> {
-        let analyses = docs.par_iter().map(|d| survey::analyze(&d.text, counter)).collect::<Result<Vec<_>, _>>()?;
+        let analyses = docs
+            .par_iter()
+            .map(|d| survey::analyze(&d.text, counter))
+            .collect::<Result<Vec<_>, _>>()?;
         Ok(Self { docs, analyses })
     }
     /// Document ids.
@@ -58,7 +61,10 @@ pub fn chunk_inputs(corpus: &Corpus, chunks: &[Vec<Chunk>], prefix: &str) -> Vec
         .docs
         .iter()
         .zip(chunks)
-        .flat_map(|(d, cs)| cs.iter().map(move |c| format!("{prefix}{}", &d.text[c.byte_range.clone()])))
+        .flat_map(|(d, cs)| {
+            cs.iter()
+                .map(move |c| format!("{prefix}{}", &d.text[c.byte_range.clone()]))
+        })
         .collect()
 }
 
@@ -74,7 +80,10 @@ pub fn unflatten(chunks: &[Vec<Chunk>], mut flat: Vec<Vec<f32>>) -> Vec<Vec<Vec<
 
 /// Tokens each chunk adds beyond its overlap with the previous one.
 pub fn new_tokens(chunks: &[Chunk]) -> Vec<usize> {
-    chunks.iter().map(|c| c.content_tokens.saturating_sub(c.overlap_tokens)).collect()
+    chunks
+        .iter()
+        .map(|c| c.content_tokens.saturating_sub(c.overlap_tokens))
+        .collect()
 }
 
 /// One document's score for one reference.
@@ -114,17 +123,26 @@ pub fn score_all(
                 .filter(|(_, vs)| !vs.is_empty())
                 .map(|(d, vs)| {
                     let cos: Vec<f32> = vs.iter().map(|v| pool::cosine(q, v)).collect();
-                    let best_chunk = cos.iter().enumerate().fold(0, |b, (i, &s)| if s > cos[b] { i } else { b });
+                    let best_chunk = cos
+                        .iter()
+                        .enumerate()
+                        .fold(0, |b, (i, &s)| if s > cos[b] { i } else { b });
                     let score = match how {
                         ChunkPooling::Best => cos[best_chunk],
                         ChunkPooling::Sum => cos.iter().sum(),
                         _ => doc_vecs[d].as_ref().map_or(0.0, |dv| pool::cosine(q, dv)),
                     };
-                    DocScore { doc: d, score, best_chunk }
+                    DocScore {
+                        doc: d,
+                        score,
+                        best_chunk,
+                    }
                 })
                 .collect();
             scores.sort_by(|a, b| {
-                b.score.total_cmp(&a.score).then_with(|| corpus.docs[b.doc].id.cmp(&corpus.docs[a.doc].id))
+                b.score
+                    .total_cmp(&a.score)
+                    .then_with(|| corpus.docs[b.doc].id.cmp(&corpus.docs[a.doc].id))
             });
             scores
         })
@@ -133,17 +151,31 @@ pub fn score_all(
 
 /// Ranking metrics of a plan over the references that name expected documents.
 pub fn summarize(corpus: &Corpus, refs: &[Reference], scores: &[Vec<DocScore>]) -> Summary {
-    let rankings: Vec<Vec<String>> =
-        scores.iter().map(|s| s.iter().map(|d| corpus.docs[d.doc].id.clone()).collect()).collect();
-    metrics::summarize(rankings.iter().zip(refs).map(|(r, q)| (r.as_slice(), &q.expect)))
+    let rankings: Vec<Vec<String>> = scores
+        .iter()
+        .map(|s| s.iter().map(|d| corpus.docs[d.doc].id.clone()).collect())
+        .collect();
+    metrics::summarize(
+        rankings
+            .iter()
+            .zip(refs)
+            .map(|(r, q)| (r.as_slice(), &q.expect)),
+    )
 }
 
 /// Mean score of expected documents over references with expectations.
-pub fn mean_expected_score(corpus: &Corpus, refs: &[Reference], scores: &[Vec<DocScore>]) -> Option<f64> {
+pub fn mean_expected_score(
+    corpus: &Corpus,
+    refs: &[Reference],
+    scores: &[Vec<DocScore>],
+) -> Option<f64> {
     let mut total = 0.0;
     let mut n = 0usize;
     for (r, s) in refs.iter().zip(scores) {
-        for d in s.iter().filter(|d| r.expect.get(&corpus.docs[d.doc].id).is_some_and(|&g| g > 0)) {
+        for d in s
+            .iter()
+            .filter(|d| r.expect.get(&corpus.docs[d.doc].id).is_some_and(|&g| g > 0))
+        {
             total += d.score as f64;
             n += 1;
         }
@@ -183,27 +215,71 @@ mod tests {
         // ready-made chunk vectors from the hash embedder.
         let e = HashEmbedder { dim: 64 };
         let docs = vec![
-            Document { id: "boiler".into(), origin: "t".into(), text: String::new() },
-            Document { id: "timetable".into(), origin: "t".into(), text: String::new() },
+            Document {
+                id: "boiler".into(),
+                origin: "t".into(),
+                text: String::new(),
+            },
+            Document {
+                id: "timetable".into(),
+                origin: "t".into(),
+                text: String::new(),
+            },
         ];
-        let corpus = Corpus { docs, analyses: vec![] };
+        let corpus = Corpus {
+            docs,
+            analyses: vec![],
+        };
         let v = |t: &str| e.embed(&[t]).unwrap().remove(0);
         let chunk_vectors = vec![
-            vec![v("boiler tubes replaced"), v("pressure test passed at 180 psi")],
-            vec![v("summer timetable trains every hour"), v("fares for children")],
+            vec![
+                v("boiler tubes replaced"),
+                v("pressure test passed at 180 psi"),
+            ],
+            vec![
+                v("summer timetable trains every hour"),
+                v("fares for children"),
+            ],
         ];
-        let mk = |n: usize| (0..n).map(|i| Chunk { index: i, byte_range: 0..0, token_range: 0..1, content_tokens: 10, overlap_tokens: 0, sentence_range: 0..0 }).collect::<Vec<_>>();
+        let mk = |n: usize| {
+            (0..n)
+                .map(|i| Chunk {
+                    index: i,
+                    byte_range: 0..0,
+                    token_range: 0..1,
+                    content_tokens: 10,
+                    overlap_tokens: 0,
+                    sentence_range: 0..0,
+                })
+                .collect::<Vec<_>>()
+        };
         let chunks = vec![mk(2), mk(2)];
         let q = vec![v("what pressure was the boiler test")];
         // Per-dimension max of signed hash features is not a similarity-preserving summary, so
         // it is left out of this check (it is covered by the pool module's own cases).
-        for how in ChunkPooling::ALL.into_iter().filter(|h| *h != ChunkPooling::DimMax) {
+        for how in ChunkPooling::ALL
+            .into_iter()
+            .filter(|h| *h != ChunkPooling::DimMax)
+        {
             let s = score_all(&corpus, &q, &chunk_vectors, &chunks, how, 0.1);
             assert_eq!(s[0][0].doc, 0, "{how:?}");
         }
-        let s = score_all(&corpus, &q, &chunk_vectors, &chunks, ChunkPooling::Best, 0.1);
+        let s = score_all(
+            &corpus,
+            &q,
+            &chunk_vectors,
+            &chunks,
+            ChunkPooling::Best,
+            0.1,
+        );
         assert_eq!(s[0][0].best_chunk, 1);
-        let refs = vec![Reference { id: "q".into(), text: "x".into(), prefix: String::new(), kind: "question".into(), expect: [("boiler".to_string(), 1)].into() }];
+        let refs = vec![Reference {
+            id: "q".into(),
+            text: "x".into(),
+            prefix: String::new(),
+            kind: "question".into(),
+            expect: [("boiler".to_string(), 1)].into(),
+        }];
         assert_eq!(summarize(&corpus, &refs, &s).mrr_at_10, 1.0);
         assert_eq!(rank_of(&s[0], 1), Some(2));
         assert_eq!(tau_between(&s[0], &s[0]), 1.0);

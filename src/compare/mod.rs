@@ -2,3 +2,4 @@
 pub mod engine;
 pub mod metrics;
 pub mod refs;
+pub mod sweep;

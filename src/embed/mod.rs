@@ -64,8 +64,16 @@ impl Embedder for HashEmbedder {
             .iter()
             .map(|t| {
                 let mut v = vec![0f32; self.dim];
-                for w in t.split(|c: char| !c.is_alphanumeric()).filter(|w| !w.is_empty()) {
-                    let h = w.to_lowercase().bytes().fold(1469598103934665603u64, |h, b| (h ^ b as u64).wrapping_mul(1099511628211));
+                for w in t
+                    .split(|c: char| !c.is_alphanumeric())
+                    .filter(|w| !w.is_empty())
+                {
+                    let h = w
+                        .to_lowercase()
+                        .bytes()
+                        .fold(1469598103934665603u64, |h, b| {
+                            (h ^ b as u64).wrapping_mul(1099511628211)
+                        });
                     v[(h % self.dim as u64) as usize] += if h >> 63 == 0 { 1.0 } else { -1.0 };
                 }
                 crate::pool::normalize(v)
