@@ -147,8 +147,7 @@ fn find_paragraphs(text: &str) -> Vec<Paragraph> {
     // The paragraph being built: start, end, kind, number of lines.
     let mut cur: Option<(usize, usize, BlockKind, usize)> = None;
     let mut fence: Option<&'static str> = None;
-    let mut flush = |cur: &mut Option<(usize, usize, BlockKind, usize)>,
-                     out: &mut Vec<Paragraph>| {
+    let flush = |cur: &mut Option<(usize, usize, BlockKind, usize)>, out: &mut Vec<Paragraph>| {
         if let Some((s, e, mut kind, lines)) = cur.take() {
             if let Some(r) = trim_range(text, s..e) {
                 if kind == BlockKind::Prose && lines == 1 && is_caps_title(&text[r.clone()]) {

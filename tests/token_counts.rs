@@ -9,13 +9,18 @@ use kerf::model;
 #[test]
 fn counts_match_the_pure_python_wordpiece() {
     let (_, counter) = model::inspect(&common::model_dir()).unwrap();
-    let fixture: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(common::repo().join("tests/fixtures/token_counts.json")).unwrap()).unwrap();
+    let fixture: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(common::repo().join("tests/fixtures/token_counts.json")).unwrap(),
+    )
+    .unwrap();
     let lee: Vec<String> = {
         let raw = std::fs::read(common::testdata("lee/lee.cor")).unwrap();
         // Latin-1: each byte is the code point of the same value.
         let text: String = raw.iter().map(|&b| b as char).collect();
-        text.split('\n').filter(|l| !l.trim().is_empty()).map(String::from).collect()
+        text.split('\n')
+            .filter(|l| !l.trim().is_empty())
+            .map(String::from)
+            .collect()
     };
     let mut checked = 0;
     let mut mismatches = Vec::new();
@@ -28,7 +33,11 @@ fn counts_match_the_pure_python_wordpiece() {
         } else {
             std::fs::read_to_string(common::repo().join(name)).unwrap()
         };
-        assert_eq!(kerf::export::sha256_hex(text.as_bytes()), t["sha256"].as_str().unwrap(), "{name} changed since the fixture was made: rerun tests/reference/token_counts.py");
+        assert_eq!(
+            kerf::export::sha256_hex(text.as_bytes()),
+            t["sha256"].as_str().unwrap(),
+            "{name} changed since the fixture was made: rerun tests/reference/token_counts.py"
+        );
         let want = t["content_tokens"].as_u64().unwrap() as usize;
         let got = counter.count_content(&text).unwrap();
         if got != want {
@@ -36,7 +45,13 @@ fn counts_match_the_pure_python_wordpiece() {
         }
         checked += 1;
     }
-    println!("token counts: {checked} texts checked, {} mismatches", mismatches.len());
-    assert!(checked >= 57, "fixture holds the demo texts, 50 Lee documents and the tricky strings");
+    println!(
+        "token counts: {checked} texts checked, {} mismatches",
+        mismatches.len()
+    );
+    assert!(
+        checked >= 57,
+        "fixture holds the demo texts, 50 Lee documents and the tricky strings"
+    );
     assert!(mismatches.is_empty(), "{}", mismatches.join("\n"));
 }

@@ -9,23 +9,38 @@ use kerf::compare::metrics::{self, Judgments};
 fn metrics_match_trec_eval() {
     let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/trec");
     let mut qrels: HashMap<String, Judgments> = HashMap::new();
-    for l in std::fs::read_to_string(dir.join("qrels.txt")).unwrap().lines() {
+    for l in std::fs::read_to_string(dir.join("qrels.txt"))
+        .unwrap()
+        .lines()
+    {
         let f: Vec<&str> = l.split_whitespace().collect();
-        qrels.entry(f[0].into()).or_default().insert(f[2].into(), f[3].parse().unwrap());
+        qrels
+            .entry(f[0].into())
+            .or_default()
+            .insert(f[2].into(), f[3].parse().unwrap());
     }
     let mut run: HashMap<String, Vec<(String, f64)>> = HashMap::new();
-    for l in std::fs::read_to_string(dir.join("run.txt")).unwrap().lines() {
+    for l in std::fs::read_to_string(dir.join("run.txt"))
+        .unwrap()
+        .lines()
+    {
         let f: Vec<&str> = l.split_whitespace().collect();
-        run.entry(f[0].into()).or_default().push((f[2].into(), f[4].parse().unwrap()));
+        run.entry(f[0].into())
+            .or_default()
+            .push((f[2].into(), f[4].parse().unwrap()));
     }
-    let expected: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(dir.join("expected.json")).unwrap()).unwrap();
+    let expected: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("expected.json")).unwrap()).unwrap();
     let mut n = 0;
     for (q, want) in expected["per_query"].as_object().unwrap() {
         let ranking = metrics::rank_by_score(run[q].clone());
         let j = &qrels[q];
         let got = [
             ("recip_rank", metrics::reciprocal_rank(&ranking, j, None)),
-            ("recip_rank_at_10", metrics::reciprocal_rank(&ranking, j, Some(10))),
+            (
+                "recip_rank_at_10",
+                metrics::reciprocal_rank(&ranking, j, Some(10)),
+            ),
             ("ndcg_cut_10", metrics::ndcg_at(&ranking, j, 10)),
             ("recall_1", metrics::recall_at(&ranking, j, 1)),
             ("recall_5", metrics::recall_at(&ranking, j, 5)),
@@ -46,7 +61,17 @@ fn metrics_match_trec_eval() {
         .collect();
     let s = metrics::summarize(runs.iter().map(|(r, j)| (r.as_slice(), *j)));
     let mean = &expected["mean"];
-    for (m, v) in [("recip_rank", s.mrr), ("recip_rank_at_10", s.mrr_at_10), ("ndcg_cut_10", s.ndcg_at_10), ("recall_1", s.recall_at_1), ("recall_10", s.recall_at_10)] {
-        assert!((v - mean[m].as_f64().unwrap()).abs() < 1e-6, "mean {m}: kerf {v}, trec_eval {}", mean[m]);
+    for (m, v) in [
+        ("recip_rank", s.mrr),
+        ("recip_rank_at_10", s.mrr_at_10),
+        ("ndcg_cut_10", s.ndcg_at_10),
+        ("recall_1", s.recall_at_1),
+        ("recall_10", s.recall_at_10),
+    ] {
+        assert!(
+            (v - mean[m].as_f64().unwrap()).abs() < 1e-6,
+            "mean {m}: kerf {v}, trec_eval {}",
+            mean[m]
+        );
     }
 }

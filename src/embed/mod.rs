@@ -1,54 +1,139 @@
-//! Encoder front (placeholder until the CPU encoder lands).
+//! The encoder stage: text in, one vector per text out.
+//!
+//! Everything downstream (pooling chunks into documents, comparing with references) talks to
+//! the model through the [`Embedder`] trait, so it is tested fast with the model-free
+//! [`HashEmbedder`] and run for real with [`BertEmbedder`], a CPU forward pass over a
+//! BERT-family checkpoint (MiniLM, BGE-small, E5-small and GTE-small share the architecture).
+mod bert;
+
+pub use bert::BertEmbedder;
 
 /// How token vectors inside one input become one vector.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, Hash,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum TokenPooling {
+    /// Average over the attention mask, specials included (the sentence-embedding default).
     #[default]
     Mean,
+    /// The first ([CLS]) token's vector.
     Cls,
+    /// Per-dimension maximum over the tokens.
     Max,
 }
 
-/// Numeric precision of the encoder's forward pass.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+/// Arithmetic of the forward pass.
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, Hash,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum Precision {
+    /// 32-bit floats.
     #[default]
     F32,
+    /// bfloat16 (not available in this build).
     Bf16,
+    /// 8-bit integers (not available in this build).
     Int8,
 }
 
-/// Errors from an encoder.
+/// Options for building an embedder.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EmbedOptions {
+    /// Token pooling; `None` takes what 1_Pooling/config.json declares (mean when absent).
+    pub pooling: Option<TokenPooling>,
+    /// L2-normalise; `None` follows modules.json (a Normalize step means yes).
+    pub normalize: Option<bool>,
+    /// Inputs longer than this (specials included) are truncated as encoders do: the head is
+    /// kept and the closing special token restored.
+    pub max_input_tokens: usize,
+    /// Padded tokens one batch may hold.
+    pub max_batch_tokens: usize,
+    /// Threads for the matrix products (0: all cores).
+    pub threads: usize,
+    /// Arithmetic precision.
+    pub precision: Precision,
+}
+
+impl Default for EmbedOptions {
+    fn default() -> Self {
+        Self {
+            pooling: None,
+            normalize: None,
+            max_input_tokens: 512,
+            max_batch_tokens: 8192,
+            threads: 0,
+            precision: Precision::F32,
+        }
+    }
+}
+
+/// Errors from loading or running an encoder; each names the file or tensor concerned.
 #[derive(Debug, thiserror::Error)]
 pub enum EmbedError {
-    /// The requested feature is not available.
+    /// A model file is missing or unreadable.
+    #[error("{path}: {reason}")]
+    File {
+        path: std::path::PathBuf,
+        reason: String,
+    },
+    /// config.json names an architecture this encoder does not run.
+    #[error("{path}: model_type `{model_type}` is not supported (kerf runs BERT-family encoders: model_type \"bert\")")]
+    Architecture {
+        path: std::path::PathBuf,
+        model_type: String,
+    },
+    /// A weight tensor is missing or has the wrong shape.
+    #[error("{path}: tensor `{name}` {problem}")]
+    Tensor {
+        path: std::path::PathBuf,
+        name: String,
+        problem: String,
+    },
+    /// Tokenizer and weights disagree.
+    #[error("{0}")]
+    Mismatch(String),
+    /// The requested feature is not available in this build.
     #[error("{0}")]
     Unsupported(String),
+    /// The forward pass failed.
+    #[error("encoder failed: {0}")]
+    Run(String),
 }
 
 /// Cumulative counters of an embedder.
 #[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize)]
 pub struct EmbedStats {
+    /// Inputs embedded.
     pub inputs: usize,
+    /// Real tokens (specials included).
     pub real_tokens: usize,
+    /// Token slots computed including padding.
     pub padded_tokens: usize,
+    /// Batches run.
     pub batches: usize,
+    /// Seconds in the forward pass.
     pub seconds: f64,
 }
 
 /// Something that turns texts into vectors.
 pub trait Embedder: Send + Sync {
+    /// Width of the vectors.
     fn dim(&self) -> usize;
+    /// Stable identifier of weights, tokenizer and settings, for cache keys.
     fn fingerprint(&self) -> String;
+    /// One vector per text, in input order.
     fn embed(&self, texts: &[&str]) -> Result<Vec<Vec<f32>>, EmbedError>;
+    /// Tokens the encoder would see for a text, specials included, before truncation.
     fn count_tokens(&self, text: &str) -> Result<usize, EmbedError>;
+    /// Counters so far.
     fn stats(&self) -> EmbedStats;
 }
 
-/// Deterministic, model-free embedder for tests: hashed bag of lowercase words.
+/// Deterministic, model-free embedder for tests: hashed bag of lower-case words, L2-normalised.
 pub struct HashEmbedder {
+    /// Width of the vectors.
     pub dim: usize,
 }
 
@@ -71,8 +156,8 @@ impl Embedder for HashEmbedder {
                     let h = w
                         .to_lowercase()
                         .bytes()
-                        .fold(1469598103934665603u64, |h, b| {
-                            (h ^ b as u64).wrapping_mul(1099511628211)
+                        .fold(0xcbf29ce484222325u64, |h, b| {
+                            (h ^ b as u64).wrapping_mul(0x100000001b3)
                         });
                     v[(h % self.dim as u64) as usize] += if h >> 63 == 0 { 1.0 } else { -1.0 };
                 }

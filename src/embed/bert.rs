@@ -1,0 +1,370 @@
+//! BERT-family encoder on CPU with candle: tokenizer, memory-mapped weights, forward pass,
+//! pooling over the attention mask, normalisation.
+use std::path::Path;
+use std::sync::Mutex;
+use std::time::Instant;
+
+use candle_core::{DType, Device, Tensor};
+use candle_nn::VarBuilder;
+use candle_transformers::models::bert::{BertModel, Config};
+use sha2::{Digest, Sha256};
+use tokenizers::{Tokenizer, TruncationParams};
+
+use super::{EmbedError, EmbedOptions, EmbedStats, Embedder, Precision, TokenPooling};
+
+/// A BERT-family sentence encoder.
+pub struct BertEmbedder {
+    model: BertModel,
+    tokenizer: Tokenizer,
+    pooling: TokenPooling,
+    normalize: bool,
+    dim: usize,
+    max_batch_tokens: usize,
+    fingerprint: String,
+    pool: rayon::ThreadPool,
+    stats: Mutex<EmbedStats>,
+}
+
+fn file_err(path: &Path, reason: impl ToString) -> EmbedError {
+    EmbedError::File {
+        path: path.to_path_buf(),
+        reason: reason.to_string(),
+    }
+}
+
+fn read_json(path: &Path) -> Result<serde_json::Value, EmbedError> {
+    let text = std::fs::read_to_string(path).map_err(|e| file_err(path, e))?;
+    serde_json::from_str(&text).map_err(|e| file_err(path, format!("malformed JSON: {e}")))
+}
+
+/// Shapes every BERT checkpoint must have, checked before loading so a bad file gets a message
+/// naming the tensor rather than a failure deep in the forward pass.
+fn expected_shapes(c: &Config) -> Vec<(String, Vec<usize>)> {
+    let (h, i, v, p, t) = (
+        c.hidden_size,
+        c.intermediate_size,
+        c.vocab_size,
+        c.max_position_embeddings,
+        c.type_vocab_size,
+    );
+    let mut out = vec![
+        ("embeddings.word_embeddings.weight".to_string(), vec![v, h]),
+        (
+            "embeddings.position_embeddings.weight".to_string(),
+            vec![p, h],
+        ),
+        (
+            "embeddings.token_type_embeddings.weight".to_string(),
+            vec![t, h],
+        ),
+        ("embeddings.LayerNorm.weight".to_string(), vec![h]),
+        ("embeddings.LayerNorm.bias".to_string(), vec![h]),
+    ];
+    for l in 0..c.num_hidden_layers {
+        let pre = format!("encoder.layer.{l}");
+        for (name, shape) in [
+            ("attention.self.query.weight", vec![h, h]),
+            ("attention.self.query.bias", vec![h]),
+            ("attention.self.key.weight", vec![h, h]),
+            ("attention.self.key.bias", vec![h]),
+            ("attention.self.value.weight", vec![h, h]),
+            ("attention.self.value.bias", vec![h]),
+            ("attention.output.dense.weight", vec![h, h]),
+            ("attention.output.dense.bias", vec![h]),
+            ("attention.output.LayerNorm.weight", vec![h]),
+            ("attention.output.LayerNorm.bias", vec![h]),
+            ("intermediate.dense.weight", vec![i, h]),
+            ("intermediate.dense.bias", vec![i]),
+            ("output.dense.weight", vec![h, i]),
+            ("output.dense.bias", vec![h]),
+            ("output.LayerNorm.weight", vec![h]),
+            ("output.LayerNorm.bias", vec![h]),
+        ] {
+            out.push((format!("{pre}.{name}"), shape));
+        }
+    }
+    out
+}
+
+fn check_tensors(path: &Path, bytes: &[u8], c: &Config) -> Result<(), EmbedError> {
+    let st = safetensors::SafeTensors::deserialize(bytes)
+        .map_err(|e| file_err(path, format!("not a safetensors file: {e}")))?;
+    let names: std::collections::HashSet<String> =
+        st.names().into_iter().map(String::from).collect();
+    for (name, shape) in expected_shapes(c) {
+        let found = [name.clone(), format!("bert.{name}")]
+            .into_iter()
+            .find(|n| names.contains(n));
+        let Some(found) = found else {
+            return Err(EmbedError::Tensor {
+                path: path.to_path_buf(),
+                name,
+                problem: "is missing".into(),
+            });
+        };
+        let t = st.tensor(&found).map_err(|e| file_err(path, e))?;
+        if t.shape() != shape.as_slice() {
+            return Err(EmbedError::Tensor {
+                path: path.to_path_buf(),
+                name: found,
+                problem: format!(
+                    "has shape {:?}, expected {:?} from config.json",
+                    t.shape(),
+                    shape
+                ),
+            });
+        }
+    }
+    Ok(())
+}
+
+impl BertEmbedder {
+    /// Load a model folder: config.json, model.safetensors (memory-mapped), tokenizer.json and,
+    /// where present, 1_Pooling/config.json and modules.json.
+    pub fn load(dir: &Path, opts: &EmbedOptions) -> Result<Self, EmbedError> {
+        if opts.precision != Precision::F32 {
+            return Err(EmbedError::Unsupported(format!(
+                "precision {:?} is not available in this build; use precision = \"f32\"",
+                opts.precision
+            )));
+        }
+        let cfg_path = dir.join("config.json");
+        let raw = read_json(&cfg_path)?;
+        let model_type = raw
+            .get("model_type")
+            .and_then(|v| v.as_str())
+            .unwrap_or("")
+            .to_string();
+        if model_type != "bert" {
+            return Err(EmbedError::Architecture {
+                path: cfg_path,
+                model_type,
+            });
+        }
+        let config: Config = serde_json::from_value(raw)
+            .map_err(|e| file_err(&cfg_path, format!("not a BERT config: {e}")))?;
+        if opts.max_input_tokens == 0 || opts.max_input_tokens > config.max_position_embeddings {
+            return Err(EmbedError::Mismatch(format!(
+                "max_input_tokens {} must be between 1 and the model's {} positions",
+                opts.max_input_tokens, config.max_position_embeddings
+            )));
+        }
+        let weights_path = dir.join("model.safetensors");
+        let file = std::fs::File::open(&weights_path).map_err(|e| file_err(&weights_path, e))?;
+        // SAFETY: the weights file is mapped read-only and not modified while the model lives;
+        // this is the one memory-mapped load the project allows.
+        let mmap = unsafe { memmap2::Mmap::map(&file) }.map_err(|e| file_err(&weights_path, e))?;
+        check_tensors(&weights_path, &mmap, &config)?;
+
+        let tok_path = dir.join("tokenizer.json");
+        let tok_bytes = std::fs::read(&tok_path).map_err(|e| file_err(&tok_path, e))?;
+        let mut tokenizer =
+            Tokenizer::from_bytes(&tok_bytes).map_err(|e| file_err(&tok_path, e))?;
+        let vocab = tokenizer.get_vocab_size(true);
+        if vocab > config.vocab_size {
+            return Err(EmbedError::Mismatch(format!(
+                "{}: the tokenizer has {vocab} tokens but the weights' vocabulary (config.json vocab_size) has {}",
+                tok_path.display(),
+                config.vocab_size
+            )));
+        }
+        tokenizer.with_padding(None);
+        tokenizer
+            .with_truncation(Some(TruncationParams {
+                max_length: opts.max_input_tokens,
+                ..Default::default()
+            }))
+            .map_err(|e| file_err(&tok_path, e))?;
+
+        let declared = read_json(&dir.join("1_Pooling/config.json")).ok();
+        let flag = |k: &str| {
+            declared
+                .as_ref()
+                .and_then(|v| v.get(k))
+                .and_then(|v| v.as_bool())
+                .unwrap_or(false)
+        };
+        let folder_pooling = if flag("pooling_mode_cls_token") {
+            TokenPooling::Cls
+        } else if flag("pooling_mode_max_tokens") {
+            TokenPooling::Max
+        } else {
+            TokenPooling::Mean
+        };
+        let folder_normalize = read_json(&dir.join("modules.json"))
+            .ok()
+            .and_then(|v| v.as_array().cloned())
+            .is_some_and(|m| {
+                m.iter().any(|x| {
+                    x.get("type")
+                        .and_then(|t| t.as_str())
+                        .is_some_and(|t| t.ends_with("Normalize"))
+                })
+            });
+        let pooling = opts.pooling.unwrap_or(folder_pooling);
+        let normalize = opts.normalize.unwrap_or(folder_normalize);
+
+        let mut h = Sha256::new();
+        h.update(b"kerf-bert-v1\0");
+        h.update(&mmap[..]);
+        h.update(&tok_bytes);
+        h.update(
+            format!(
+                "{pooling:?}/{normalize}/{}/{:?}",
+                opts.max_input_tokens, opts.precision
+            )
+            .as_bytes(),
+        );
+        let fingerprint: String = h.finalize().iter().map(|b| format!("{b:02x}")).collect();
+
+        let vb = VarBuilder::from_slice_safetensors(&mmap, DType::F32, &Device::Cpu)
+            .map_err(|e| file_err(&weights_path, e))?;
+        let model = BertModel::load(vb, &config).map_err(|e| file_err(&weights_path, e))?;
+        let threads = if opts.threads == 0 {
+            std::thread::available_parallelism().map_or(1, |n| n.get())
+        } else {
+            opts.threads
+        };
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .map_err(|e| EmbedError::Run(e.to_string()))?;
+        Ok(Self {
+            model,
+            tokenizer,
+            pooling,
+            normalize,
+            dim: config.hidden_size,
+            max_batch_tokens: opts.max_batch_tokens.max(1),
+            fingerprint,
+            pool,
+            stats: Mutex::new(EmbedStats::default()),
+        })
+    }
+
+    /// The pooling in force.
+    pub fn pooling(&self) -> TokenPooling {
+        self.pooling
+    }
+
+    fn run_batch(&self, ids: &[&[u32]]) -> Result<Vec<Vec<f32>>, EmbedError> {
+        let run = |e: candle_core::Error| EmbedError::Run(e.to_string());
+        let len = ids.iter().map(|x| x.len()).max().unwrap_or(0);
+        let b = ids.len();
+        let mut flat = vec![0u32; b * len];
+        let mut mask = vec![0f32; b * len];
+        for (r, x) in ids.iter().enumerate() {
+            flat[r * len..r * len + x.len()].copy_from_slice(x);
+            mask[r * len..r * len + x.len()]
+                .iter_mut()
+                .for_each(|m| *m = 1.0);
+        }
+        let dev = Device::Cpu;
+        let input = Tensor::from_vec(flat, (b, len), &dev).map_err(run)?;
+        let types = input.zeros_like().map_err(run)?;
+        let mask_t = Tensor::from_vec(mask, (b, len), &dev).map_err(run)?;
+        let hidden = self
+            .model
+            .forward(&input, &types, Some(&mask_t))
+            .map_err(run)?; // (b, len, dim)
+        let pooled = match self.pooling {
+            TokenPooling::Cls => hidden
+                .narrow(1, 0, 1)
+                .and_then(|t| t.squeeze(1))
+                .map_err(run)?,
+            TokenPooling::Mean => {
+                let m = mask_t.unsqueeze(2).map_err(run)?;
+                let sum = hidden
+                    .broadcast_mul(&m)
+                    .and_then(|t| t.sum(1))
+                    .map_err(run)?;
+                let count = m.sum(1).map_err(run)?;
+                sum.broadcast_div(&count).map_err(run)?
+            }
+            TokenPooling::Max => {
+                // Padded positions get a very negative value so they never win the maximum.
+                let m = mask_t.unsqueeze(2).map_err(run)?;
+                let neg =
+                    ((m.ones_like().map_err(run)? - &m).map_err(run)? * -1e9f64).map_err(run)?;
+                hidden
+                    .broadcast_add(&neg)
+                    .and_then(|t| t.max(1))
+                    .map_err(run)?
+            }
+        };
+        let rows: Vec<Vec<f32>> = pooled.to_vec2::<f32>().map_err(run)?;
+        Ok(if self.normalize {
+            rows.into_iter().map(crate::pool::normalize).collect()
+        } else {
+            rows
+        })
+    }
+}
+
+impl Embedder for BertEmbedder {
+    fn dim(&self) -> usize {
+        self.dim
+    }
+
+    fn fingerprint(&self) -> String {
+        self.fingerprint.clone()
+    }
+
+    fn embed(&self, texts: &[&str]) -> Result<Vec<Vec<f32>>, EmbedError> {
+        let t0 = Instant::now();
+        let encodings = self
+            .tokenizer
+            .encode_batch(texts.to_vec(), true)
+            .map_err(|e| EmbedError::Run(format!("tokenizer: {e}")))?;
+        let ids: Vec<&[u32]> = encodings.iter().map(|e| e.get_ids()).collect();
+        // Length-sorted batches under the padded-token budget keep padding small.
+        let mut order: Vec<usize> = (0..ids.len()).collect();
+        order.sort_by_key(|&i| (ids[i].len(), i));
+        let mut out: Vec<Option<Vec<f32>>> = vec![None; ids.len()];
+        let mut stats = EmbedStats::default();
+        let mut start = 0;
+        while start < order.len() {
+            let mut end = start + 1;
+            while end < order.len()
+                && ids[order[end]].len() * (end + 1 - start) <= self.max_batch_tokens
+            {
+                end += 1;
+            }
+            let batch: Vec<&[u32]> = order[start..end].iter().map(|&i| ids[i]).collect();
+            let longest = batch.iter().map(|x| x.len()).max().unwrap_or(0);
+            let vecs = self.pool.install(|| self.run_batch(&batch))?;
+            for (&i, v) in order[start..end].iter().zip(vecs) {
+                out[i] = Some(v);
+            }
+            stats.batches += 1;
+            stats.real_tokens += batch.iter().map(|x| x.len()).sum::<usize>();
+            stats.padded_tokens += longest * batch.len();
+            start = end;
+        }
+        stats.inputs = texts.len();
+        stats.seconds = t0.elapsed().as_secs_f64();
+        let mut s = self.stats.lock().expect("stats lock");
+        s.inputs += stats.inputs;
+        s.real_tokens += stats.real_tokens;
+        s.padded_tokens += stats.padded_tokens;
+        s.batches += stats.batches;
+        s.seconds += stats.seconds;
+        Ok(out
+            .into_iter()
+            .map(|v| v.expect("every input embedded"))
+            .collect())
+    }
+
+    fn count_tokens(&self, text: &str) -> Result<usize, EmbedError> {
+        let mut t = self.tokenizer.clone();
+        t.with_truncation(None)
+            .map_err(|e| EmbedError::Run(e.to_string()))?;
+        t.encode(text, true)
+            .map(|e| e.len())
+            .map_err(|e| EmbedError::Run(e.to_string()))
+    }
+
+    fn stats(&self) -> EmbedStats {
+        *self.stats.lock().expect("stats lock")
+    }
+}

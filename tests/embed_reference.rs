@@ -1,0 +1,161 @@
+//! The CPU encoder against sentence-transformers (PyPI) on the same model folder, and against
+//! human similarity judgments (Lee, Pincombe & Welsh 2005, gensim 4.4.0 test data).
+mod common;
+
+use kerf::embed::{BertEmbedder, EmbedOptions, Embedder};
+use kerf::pool::cosine;
+
+fn fixture(name: &str) -> serde_json::Value {
+    serde_json::from_str(
+        &std::fs::read_to_string(common::repo().join("tests/fixtures").join(name)).unwrap(),
+    )
+    .unwrap()
+}
+
+fn encoder(max_input_tokens: usize) -> BertEmbedder {
+    BertEmbedder::load(
+        &common::model_dir(),
+        &EmbedOptions {
+            max_input_tokens,
+            ..Default::default()
+        },
+    )
+    .unwrap()
+}
+
+#[test]
+fn vectors_match_sentence_transformers() {
+    // Fixture: tests/reference/st_vectors.py (sentence-transformers, max_seq_length 256).
+    let f = fixture("st_vectors.json");
+    let e = encoder(256);
+    let items = f["texts"].as_array().unwrap();
+    assert!(items.len() >= 20);
+    let texts: Vec<&str> = items.iter().map(|t| t["text"].as_str().unwrap()).collect();
+    let got = e.embed(&texts).unwrap();
+    let mut worst = 1.0f32;
+    for (t, v) in items.iter().zip(&got) {
+        let want: Vec<f32> = t["vector"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_f64().unwrap() as f32)
+            .collect();
+        let c = cosine(v, &want);
+        worst = worst.min(c);
+        assert!(
+            c >= 0.9999,
+            "cosine {c} for a text of {} tokens",
+            t["tokens_with_specials"]
+        );
+        assert_eq!(
+            e.count_tokens(t["text"].as_str().unwrap()).unwrap() as u64,
+            t["tokens_with_specials"].as_u64().unwrap()
+        );
+    }
+    let lens: Vec<u64> = items
+        .iter()
+        .map(|t| t["tokens_with_specials"].as_u64().unwrap())
+        .collect();
+    assert!(
+        lens.contains(&255) && lens.contains(&256) && lens.contains(&257),
+        "texts around the 256-token limit"
+    );
+    println!(
+        "worst cosine to sentence-transformers over {} texts: {worst:.7}",
+        items.len()
+    );
+    // Batch composition does not change a text's vector beyond float noise.
+    let alone = e.embed(&[texts[3]]).unwrap();
+    assert!(cosine(&alone[0], &got[3]) > 0.999999);
+}
+
+#[test]
+fn lee_correlation_matches_sentence_transformers() {
+    let raw = std::fs::read(common::testdata("lee/lee.cor")).unwrap();
+    let text: String = raw.iter().map(|&b| b as char).collect(); // Latin-1
+    let docs: Vec<&str> = text.split('\n').filter(|l| !l.trim().is_empty()).collect();
+    assert_eq!(docs.len(), 50);
+    let human: Vec<Vec<f64>> = std::fs::read_to_string(common::testdata("lee/similarities0-1.txt"))
+        .unwrap()
+        .lines()
+        .filter(|l| !l.trim().is_empty())
+        .map(|l| l.split_whitespace().map(|x| x.parse().unwrap()).collect())
+        .collect();
+    let v = encoder(256).embed(&docs).unwrap();
+    let (mut xs, mut ys) = (Vec::new(), Vec::new());
+    for i in 0..50 {
+        for j in i + 1..50 {
+            xs.push(cosine(&v[i], &v[j]) as f64);
+            ys.push(human[i][j]);
+        }
+    }
+    assert_eq!(xs.len(), 1225);
+    let mean = |a: &[f64]| a.iter().sum::<f64>() / a.len() as f64;
+    let (mx, my) = (mean(&xs), mean(&ys));
+    let cov: f64 = xs.iter().zip(&ys).map(|(x, y)| (x - mx) * (y - my)).sum();
+    let vx: f64 = xs.iter().map(|x| (x - mx).powi(2)).sum();
+    let vy: f64 = ys.iter().map(|y| (y - my).powi(2)).sum();
+    let r = cov / (vx * vy).sqrt();
+    let want = fixture("lee_st.json")["pearson_256"].as_f64().unwrap();
+    println!("Lee Pearson: kerf {r:.4}, sentence-transformers {want:.4}");
+    // Tolerance from the issue: within 0.005 of the sentence-transformers figure.
+    assert!(
+        (r - want).abs() < 0.005,
+        "kerf {r}, sentence-transformers {want}"
+    );
+}
+
+#[test]
+fn bad_model_folders_name_the_problem() {
+    let dir = tempfile::tempdir().unwrap();
+    let src = common::model_dir();
+    for f in ["config.json", "tokenizer.json", "model.safetensors"] {
+        std::fs::copy(src.join(f), dir.path().join(f)).unwrap();
+    }
+    let opts = EmbedOptions::default();
+    // Another architecture.
+    let cfg = std::fs::read_to_string(src.join("config.json")).unwrap();
+    std::fs::write(
+        dir.path().join("config.json"),
+        cfg.replace("\"model_type\": \"bert\"", "\"model_type\": \"gpt2\""),
+    )
+    .unwrap();
+    let e = BertEmbedder::load(dir.path(), &opts)
+        .err()
+        .unwrap()
+        .to_string();
+    assert!(e.contains("model_type `gpt2` is not supported"), "{e}");
+    // Weights that disagree with the config: a wider hidden size.
+    std::fs::write(
+        dir.path().join("config.json"),
+        cfg.replace("\"hidden_size\": 384", "\"hidden_size\": 512"),
+    )
+    .unwrap();
+    let e = BertEmbedder::load(dir.path(), &opts)
+        .err()
+        .unwrap()
+        .to_string();
+    assert!(e.contains("tensor `embeddings.word_embeddings.weight` has shape [30522, 384], expected [30522, 512]"), "{e}");
+    // Tokenizer larger than the weights' vocabulary.
+    std::fs::write(
+        dir.path().join("config.json"),
+        cfg.replace("\"vocab_size\": 30522", "\"vocab_size\": 30000"),
+    )
+    .unwrap();
+    let e = BertEmbedder::load(dir.path(), &opts)
+        .err()
+        .unwrap()
+        .to_string();
+    assert!(
+        e.contains("has shape [30522, 384], expected [30000, 384]") || e.contains("30522 tokens"),
+        "{e}"
+    );
+    // Missing weights.
+    std::fs::write(dir.path().join("config.json"), &cfg).unwrap();
+    std::fs::remove_file(dir.path().join("model.safetensors")).unwrap();
+    let e = BertEmbedder::load(dir.path(), &opts)
+        .err()
+        .unwrap()
+        .to_string();
+    assert!(e.contains("model.safetensors"), "{e}");
+}
