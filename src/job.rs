@@ -26,7 +26,10 @@ pub struct BatchPlan {
 
 /// Deduplicate chunk texts and group them into batches of at most `max_batch_tokens` tokens
 /// (a single longer input gets a batch of its own).
-pub fn plan_batches(chunks: impl IntoIterator<Item = (String, usize)>, max_batch_tokens: usize) -> BatchPlan {
+pub fn plan_batches(
+    chunks: impl IntoIterator<Item = (String, usize)>,
+    max_batch_tokens: usize,
+) -> BatchPlan {
     let mut index: HashMap<String, usize> = HashMap::new();
     let (mut texts, mut tokens, mut input_of_chunk) = (Vec::new(), Vec::new(), Vec::new());
     for (text, n) in chunks {
@@ -53,7 +56,12 @@ pub fn plan_batches(chunks: impl IntoIterator<Item = (String, usize)>, max_batch
             }
         }
     }
-    BatchPlan { texts, tokens, input_of_chunk, batches }
+    BatchPlan {
+        texts,
+        tokens,
+        input_of_chunk,
+        batches,
+    }
 }
 
 /// Progress of a job.
@@ -96,12 +104,24 @@ pub fn run(
 ) -> anyhow::Result<(Vec<Vec<f32>>, JobReport)> {
     let fingerprint = embedder.fingerprint();
     let mut vectors: Vec<Option<Vec<f32>>> = vec![None; plan.texts.len()];
-    let mut report = JobReport { chunks: plan.input_of_chunk.len(), unique_inputs: plan.texts.len(), ..Default::default() };
+    let mut report = JobReport {
+        chunks: plan.input_of_chunk.len(),
+        unique_inputs: plan.texts.len(),
+        ..Default::default()
+    };
     let tokens_total = plan.tokens.iter().sum();
-    let mut p = Progress { inputs_done: 0, inputs_total: plan.texts.len(), tokens_done: 0, tokens_total };
+    let mut p = Progress {
+        inputs_done: 0,
+        inputs_total: plan.texts.len(),
+        tokens_done: 0,
+        tokens_total,
+    };
     progress(p);
     for batch in &plan.batches {
-        let keys: Vec<[u8; 32]> = batch.iter().map(|&i| text_key(prefix, &plan.texts[i])).collect();
+        let keys: Vec<[u8; 32]> = batch
+            .iter()
+            .map(|&i| text_key(prefix, &plan.texts[i]))
+            .collect();
         let hits = match cache {
             Some(c) => c.get_many(&fingerprint, &keys)?,
             None => vec![None; batch.len()],
@@ -112,14 +132,23 @@ pub fn run(
             }
             report.cached_inputs += batch.len();
         } else {
-            let inputs: Vec<String> = batch.iter().map(|&i| format!("{prefix}{}", plan.texts[i])).collect();
+            let inputs: Vec<String> = batch
+                .iter()
+                .map(|&i| format!("{prefix}{}", plan.texts[i]))
+                .collect();
             let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
             let t = Instant::now();
             let out = embedder.embed(&refs)?;
             report.encoder_seconds += t.elapsed().as_secs_f64();
-            anyhow::ensure!(out.len() == batch.len(), "the encoder returned {} vectors for {} inputs", out.len(), batch.len());
+            anyhow::ensure!(
+                out.len() == batch.len(),
+                "the encoder returned {} vectors for {} inputs",
+                out.len(),
+                batch.len()
+            );
             if let Some(c) = cache {
-                let items: Vec<([u8; 32], Vec<f32>)> = keys.iter().copied().zip(out.iter().cloned()).collect();
+                let items: Vec<([u8; 32], Vec<f32>)> =
+                    keys.iter().copied().zip(out.iter().cloned()).collect();
                 c.put_many(&fingerprint, &items)?;
             }
             report.embedded_inputs += batch.len();
@@ -132,7 +161,13 @@ pub fn run(
         p.tokens_done += batch.iter().map(|&i| plan.tokens[i]).sum::<usize>();
         progress(p);
     }
-    Ok((vectors.into_iter().map(|v| v.expect("every batch filled its vectors")).collect(), report))
+    Ok((
+        vectors
+            .into_iter()
+            .map(|v| v.expect("every batch filled its vectors"))
+            .collect(),
+        report,
+    ))
 }
 
 #[cfg(test)]
@@ -141,7 +176,13 @@ mod tests {
 
     #[test]
     fn batches_dedupe_sort_and_respect_the_budget() {
-        let chunks = vec![("a".to_string(), 50), ("b".to_string(), 10), ("a".to_string(), 50), ("c".to_string(), 30), ("d".to_string(), 200)];
+        let chunks = vec![
+            ("a".to_string(), 50),
+            ("b".to_string(), 10),
+            ("a".to_string(), 50),
+            ("c".to_string(), 30),
+            ("d".to_string(), 200),
+        ];
         let p = plan_batches(chunks, 100);
         assert_eq!(p.texts, ["a", "b", "c", "d"]);
         assert_eq!(p.input_of_chunk, [0, 1, 0, 2, 3]);

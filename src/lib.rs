@@ -5,10 +5,12 @@
 //! chunks that fit, [`survey`] takes the census, [`profile`] and [`plan`] hold the plan,
 //! [`pool`] turns chunk vectors into document vectors or scores. The library never touches the
 //! terminal; the binary in `main.rs` and the `cli` module are thin.
+pub mod cache;
 pub mod compare;
 pub mod corpus;
 pub mod embed;
 pub mod export;
+pub mod job;
 pub mod model;
 pub mod output;
 pub mod plan;

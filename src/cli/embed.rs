@@ -51,7 +51,11 @@ impl EncoderArgs {
         if self.no_cache {
             return Ok(None);
         }
-        let path = self.cache.clone().unwrap_or_else(|| kerf::model::kerf_home().join("cache").join("vectors.sqlite"));
+        let path = self.cache.clone().unwrap_or_else(|| {
+            kerf::model::kerf_home()
+                .join("cache")
+                .join("vectors.sqlite")
+        });
         if let Some(dir) = path.parent() {
             std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
         }
@@ -82,7 +86,11 @@ pub struct EmbedArgs {
 }
 
 /// A progress bar on a terminal, nothing otherwise.
-pub fn progress_bar(total_tokens: usize, quiet: bool, what: &str) -> Option<indicatif::ProgressBar> {
+pub fn progress_bar(
+    total_tokens: usize,
+    quiet: bool,
+    what: &str,
+) -> Option<indicatif::ProgressBar> {
     use std::io::IsTerminal;
     if quiet || !std::io::stderr().is_terminal() {
         return None;
@@ -102,10 +110,14 @@ fn fresh_dir_beside(target: &Path) -> Result<PathBuf> {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let name = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "out".into());
+    let name = target
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "out".into());
     let tmp = parent.join(format!(".{name}.partial-{}", std::process::id()));
     if tmp.exists() {
-        std::fs::remove_dir_all(&tmp).with_context(|| format!("removing stale {}", tmp.display()))?;
+        std::fs::remove_dir_all(&tmp)
+            .with_context(|| format!("removing stale {}", tmp.display()))?;
     }
     std::fs::create_dir_all(&tmp).with_context(|| format!("creating {}", tmp.display()))?;
     Ok(tmp)
@@ -116,7 +128,10 @@ pub fn run(a: EmbedArgs) -> Result<()> {
         anyhow::bail!("kerf embed needs --profile FILE (see profiles/ for ready-made plans)");
     }
     if a.out.exists() && !a.force {
-        anyhow::bail!("{} already exists (pass --force to replace it)", a.out.display());
+        anyhow::bail!(
+            "{} already exists (pass --force to replace it)",
+            a.out.display()
+        );
     }
     let loaded = load_plan(&a.plan, |_| unreachable!("a profile was given"))?;
     let (counter, plan) = (&loaded.counter, &loaded.plan);
@@ -134,7 +149,13 @@ pub fn run(a: EmbedArgs) -> Result<()> {
             let an = survey::analyze(&doc.text, counter)?;
             let chunks = split::cut(&doc.text, &an.tokens, &an.segments, &plan.cut, &recount);
             let new_tokens = kerf::compare::engine::new_tokens(&chunks);
-            Ok((chunks.iter().map(|c| ChunkRecord::new(doc, c, plan)).collect::<Vec<_>>(), new_tokens))
+            Ok((
+                chunks
+                    .iter()
+                    .map(|c| ChunkRecord::new(doc, c, plan))
+                    .collect::<Vec<_>>(),
+                new_tokens,
+            ))
         },
         |doc, (recs, newt)| {
             docs.push((doc.id, recs, newt));
@@ -143,43 +164,70 @@ pub fn run(a: EmbedArgs) -> Result<()> {
     )?;
     report_notices(&stream.notices);
     let all: Vec<&ChunkRecord> = docs.iter().flat_map(|d| d.1.iter()).collect();
-    let batch_plan = job::plan_batches(all.iter().map(|r| (r.text.clone(), r.tokens)), a.encoder.batch_tokens);
+    let batch_plan = job::plan_batches(
+        all.iter().map(|r| (r.text.clone(), r.tokens)),
+        a.encoder.batch_tokens,
+    );
     let bar = progress_bar(batch_plan.tokens.iter().sum(), a.encoder.quiet, "embedding");
-    let (unique_vectors, report) = job::run(&batch_plan, &plan.profile.cut.prefix, embedder.as_ref(), cache.as_ref(), &mut |p| {
-        if let Some(b) = &bar {
-            b.set_position(p.tokens_done as u64);
-            b.set_message(format!("{}/{} chunks", p.inputs_done, p.inputs_total));
-        }
-    })?;
+    let (unique_vectors, report) = job::run(
+        &batch_plan,
+        &plan.profile.cut.prefix,
+        embedder.as_ref(),
+        cache.as_ref(),
+        &mut |p| {
+            if let Some(b) = &bar {
+                b.set_position(p.tokens_done as u64);
+                b.set_message(format!("{}/{} chunks", p.inputs_done, p.inputs_total));
+            }
+        },
+    )?;
     if let Some(b) = bar {
         b.finish_and_clear();
     }
     let dim = embedder.dim();
-    let chunk_vectors: Vec<&Vec<f32>> = batch_plan.input_of_chunk.iter().map(|&i| &unique_vectors[i]).collect();
+    let chunk_vectors: Vec<&Vec<f32>> = batch_plan
+        .input_of_chunk
+        .iter()
+        .map(|&i| &unique_vectors[i])
+        .collect();
 
     // Document vectors by the profile's aggregation (scorings have none: mean stands in).
     let how = plan.profile.pool.chunks;
-    let doc_how = if how.is_scoring() { ChunkPooling::Mean } else { how };
+    let doc_how = if how.is_scoring() {
+        ChunkPooling::Mean
+    } else {
+        how
+    };
     let mut at = 0;
     let mut doc_ids: Vec<&str> = Vec::new();
     let mut doc_matrix: Vec<f32> = Vec::new();
     for (id, recs, newt) in &docs {
-        let views: Vec<&[f32]> = chunk_vectors[at..at + recs.len()].iter().map(|v| v.as_slice()).collect();
+        let views: Vec<&[f32]> = chunk_vectors[at..at + recs.len()]
+            .iter()
+            .map(|v| v.as_slice())
+            .collect();
         at += recs.len();
         if let Some(v) = pool::doc_vector(doc_how, &views, newt, plan.profile.pool.temperature) {
             doc_ids.push(id);
             doc_matrix.extend(v);
         }
     }
-    let chunk_matrix: Vec<f32> = chunk_vectors.iter().flat_map(|v| v.iter().copied()).collect();
+    let chunk_matrix: Vec<f32> = chunk_vectors
+        .iter()
+        .flat_map(|v| v.iter().copied())
+        .collect();
 
     // Write everything into a fresh folder beside the target; manifest last; then move it in.
     let tmp = fresh_dir_beside(&a.out)?;
     let result = (|| -> Result<()> {
         let mut files = serde_json::Map::new();
         let mut put = |name: &str, bytes: Vec<u8>| -> Result<()> {
-            let sum = export::write_file(&tmp, name, &bytes).with_context(|| format!("writing {}", a.out.join(name).display()))?;
-            files.insert(name.into(), serde_json::json!({ "sha256": sum, "bytes": bytes.len() }));
+            let sum = export::write_file(&tmp, name, &bytes)
+                .with_context(|| format!("writing {}", a.out.join(name).display()))?;
+            files.insert(
+                name.into(),
+                serde_json::json!({ "sha256": sum, "bytes": bytes.len() }),
+            );
             Ok(())
         };
         let mut jsonl = Vec::new();
@@ -190,8 +238,14 @@ pub fn run(a: EmbedArgs) -> Result<()> {
         put("chunks.jsonl", jsonl)?;
         match a.format {
             Format::Npy => {
-                put("chunk_vectors.npy", export::npy_f32(all.len(), dim, &chunk_matrix))?;
-                put("doc_vectors.npy", export::npy_f32(doc_ids.len(), dim, &doc_matrix))?;
+                put(
+                    "chunk_vectors.npy",
+                    export::npy_f32(all.len(), dim, &chunk_matrix),
+                )?;
+                put(
+                    "doc_vectors.npy",
+                    export::npy_f32(doc_ids.len(), dim, &doc_matrix),
+                )?;
                 put("doc_ids.json", serde_json::to_vec_pretty(&doc_ids)?)?;
             }
             Format::Parquet => {
@@ -203,8 +257,15 @@ pub fn run(a: EmbedArgs) -> Result<()> {
                     tokens: all.iter().map(|r| r.tokens as u32).collect(),
                     text: all.iter().map(|r| r.text.as_str()).collect(),
                 };
-                put("chunks.parquet", export::chunks_parquet(&rows, dim, &chunk_matrix).map_err(anyhow::Error::msg)?)?;
-                put("documents.parquet", export::docs_parquet(&doc_ids, dim, &doc_matrix).map_err(anyhow::Error::msg)?)?;
+                put(
+                    "chunks.parquet",
+                    export::chunks_parquet(&rows, dim, &chunk_matrix)
+                        .map_err(anyhow::Error::msg)?,
+                )?;
+                put(
+                    "documents.parquet",
+                    export::docs_parquet(&doc_ids, dim, &doc_matrix).map_err(anyhow::Error::msg)?,
+                )?;
             }
         }
         let manifest = serde_json::json!({
@@ -225,7 +286,11 @@ pub fn run(a: EmbedArgs) -> Result<()> {
             },
             "files": files,
         });
-        export::write_file(&tmp, "manifest.json", &serde_json::to_vec_pretty(&manifest)?)?;
+        export::write_file(
+            &tmp,
+            "manifest.json",
+            &serde_json::to_vec_pretty(&manifest)?,
+        )?;
         Ok(())
     })();
     if let Err(e) = result {
@@ -234,11 +299,14 @@ pub fn run(a: EmbedArgs) -> Result<()> {
     }
     if a.out.exists() {
         let old = tmp.with_extension("old");
-        std::fs::rename(&a.out, &old).with_context(|| format!("moving the old {} aside", a.out.display()))?;
-        std::fs::rename(&tmp, &a.out).with_context(|| format!("moving the output into {}", a.out.display()))?;
+        std::fs::rename(&a.out, &old)
+            .with_context(|| format!("moving the old {} aside", a.out.display()))?;
+        std::fs::rename(&tmp, &a.out)
+            .with_context(|| format!("moving the output into {}", a.out.display()))?;
         let _ = std::fs::remove_dir_all(&old);
     } else {
-        std::fs::rename(&tmp, &a.out).with_context(|| format!("moving the output into {}", a.out.display()))?;
+        std::fs::rename(&tmp, &a.out)
+            .with_context(|| format!("moving the output into {}", a.out.display()))?;
     }
     let mut err = std::io::stderr().lock();
     writeln!(

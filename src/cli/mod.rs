@@ -13,6 +13,7 @@ use kerf::profile::Profile;
 use kerf::tokens::TokenCounter;
 
 mod cut;
+mod embed;
 mod explore;
 mod modelcmd;
 mod profilecmd;
@@ -37,6 +38,8 @@ enum Command {
     Survey(survey::SurveyArgs),
     /// Cut documents into chunks that fit the window; writes JSONL.
     Cut(cut::CutArgs),
+    /// Embed every chunk on CPU and write vectors (NumPy .npy or Parquet) with a manifest.
+    Embed(embed::EmbedArgs),
     /// Check, show or create profiles.
     #[command(subcommand)]
     Profile(profilecmd::ProfileCmd),
@@ -122,6 +125,28 @@ pub fn load_plan(args: &PlanArgs, fallback: impl FnOnce(&ModelInfo) -> Profile) 
     })
 }
 
+/// The encoder for a resolved plan. Chunks always fit their window, so the encoder's own
+/// truncation is set to the position limit: vectors (and cache entries) are then shared by
+/// every plan whatever its window.
+pub fn load_embedder(
+    loaded: &Loaded,
+    enc: &embed::EncoderArgs,
+) -> Result<std::sync::Arc<dyn kerf::embed::Embedder>> {
+    let p = &loaded.plan.profile;
+    let opts = kerf::embed::EmbedOptions {
+        pooling: Some(p.pool.tokens),
+        normalize: None,
+        max_input_tokens: loaded.info.max_position_embeddings,
+        max_batch_tokens: enc.batch_tokens,
+        threads: enc.threads,
+        precision: p.pool.precision,
+    };
+    Ok(std::sync::Arc::new(kerf::embed::BertEmbedder::load(
+        &loaded.info.dir,
+        &opts,
+    )?))
+}
+
 /// Print notices (skipped files, empty documents) to stderr.
 pub fn report_notices(notices: &[kerf::corpus::Notice]) {
     for n in notices {
@@ -169,6 +194,7 @@ pub fn run() -> ExitCode {
         Command::Model(a) => modelcmd::run(a),
         Command::Survey(a) => survey::run(a),
         Command::Cut(a) => cut::run(a),
+        Command::Embed(a) => embed::run(a),
         Command::Profile(c) => profilecmd::run(c),
         Command::Explore(a) => explore::run(a),
     };

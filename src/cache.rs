@@ -1,0 +1,375 @@
+//! The vector cache: chunk vectors by model fingerprint and exact input text, in SQLite.
+//!
+//! Planning embeds the same chunks again and again (every sweep, every key press in the
+//! explorer); the cache makes that cheap. Writes happen in transactions, so a killed run leaves
+//! a consistent store; WAL mode and a busy timeout let two kerf processes share one file. A file
+//! that fails SQLite's integrity check, or a blob of the wrong length, is reported, never used.
+use std::path::{Path, PathBuf};
+
+use rusqlite::{params, Connection, OptionalExtension};
+use sha2::{Digest, Sha256};
+
+/// The on-disk schema this build reads and writes.
+const SCHEMA: i64 = 1;
+
+/// Errors from the cache.
+#[derive(Debug, thiserror::Error)]
+pub enum CacheError {
+    /// SQLite failed.
+    #[error("vector cache {path}: {source}")]
+    Sql {
+        path: PathBuf,
+        source: rusqlite::Error,
+    },
+    /// The file is damaged.
+    #[error(
+        "vector cache {path} is corrupt ({detail}); pass --rebuild-cache to delete and recreate it"
+    )]
+    Corrupt { path: PathBuf, detail: String },
+}
+
+/// A handle on the cache file.
+pub struct VectorCache {
+    conn: Connection,
+    path: PathBuf,
+}
+
+/// Cache key of an input: sha256 of the prefix, a zero byte, and the text.
+pub fn text_key(prefix: &str, text: &str) -> [u8; 32] {
+    let mut h = Sha256::new();
+    h.update(prefix.as_bytes());
+    h.update([0u8]);
+    h.update(text.as_bytes());
+    h.finalize().into()
+}
+
+fn to_blob(v: &[f32]) -> Vec<u8> {
+    v.iter().flat_map(|x| x.to_le_bytes()).collect()
+}
+
+impl VectorCache {
+    /// Open or create the cache, checking its integrity and schema.
+    pub fn open(path: &Path) -> Result<Self, CacheError> {
+        let sql = |source| CacheError::Sql {
+            path: path.to_path_buf(),
+            source,
+        };
+        let corrupt = |detail: String| CacheError::Corrupt {
+            path: path.to_path_buf(),
+            detail,
+        };
+        let conn = Connection::open(path).map_err(sql)?;
+        conn.busy_timeout(std::time::Duration::from_secs(30))
+            .map_err(sql)?;
+        // A file that is not SQLite at all fails on the first statement.
+        let mode: String = conn
+            .query_row("PRAGMA journal_mode=WAL", [], |r| r.get(0))
+            .map_err(|e| corrupt(e.to_string()))?;
+        let _ = mode;
+        let check: String = conn
+            .query_row("PRAGMA quick_check", [], |r| r.get(0))
+            .map_err(|e| corrupt(e.to_string()))?;
+        if check != "ok" {
+            return Err(corrupt(check));
+        }
+        conn.execute_batch(
+            "CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value INTEGER NOT NULL);
+             CREATE TABLE IF NOT EXISTS vectors (
+                 model BLOB NOT NULL, key BLOB NOT NULL, vector BLOB NOT NULL,
+                 PRIMARY KEY (model, key)) WITHOUT ROWID;",
+        )
+        .map_err(|e| corrupt(e.to_string()))?;
+        let schema: Option<i64> = conn
+            .query_row("SELECT value FROM meta WHERE key = 'schema'", [], |r| {
+                r.get(0)
+            })
+            .optional()
+            .map_err(sql)?;
+        match schema {
+            None => {
+                conn.execute(
+                    "INSERT OR IGNORE INTO meta VALUES ('schema', ?1)",
+                    params![SCHEMA],
+                )
+                .map_err(sql)?;
+            }
+            Some(SCHEMA) => {}
+            Some(other) => {
+                return Err(corrupt(format!(
+                    "schema {other}, this kerf reads schema {SCHEMA}"
+                )))
+            }
+        }
+        Ok(Self {
+            conn,
+            path: path.to_path_buf(),
+        })
+    }
+
+    /// Delete the file (and its WAL files) and create an empty cache.
+    pub fn rebuild(path: &Path) -> Result<Self, CacheError> {
+        for suffix in ["", "-wal", "-shm"] {
+            let p = PathBuf::from(format!("{}{suffix}", path.display()));
+            if p.exists() {
+                std::fs::remove_file(&p).map_err(|e| CacheError::Corrupt {
+                    path: p.clone(),
+                    detail: format!("cannot delete: {e}"),
+                })?;
+            }
+        }
+        Self::open(path)
+    }
+
+    /// Where the cache lives.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Look up vectors for keys under a model fingerprint.
+    pub fn get_many(
+        &self,
+        fingerprint: &str,
+        keys: &[[u8; 32]],
+    ) -> Result<Vec<Option<Vec<f32>>>, CacheError> {
+        let sql = |source| CacheError::Sql {
+            path: self.path.clone(),
+            source,
+        };
+        let model = fingerprint_bytes(fingerprint);
+        let mut stmt = self
+            .conn
+            .prepare_cached("SELECT vector FROM vectors WHERE model = ?1 AND key = ?2")
+            .map_err(sql)?;
+        let mut out = Vec::with_capacity(keys.len());
+        let mut width: Option<usize> = None;
+        for k in keys {
+            let blob: Option<Vec<u8>> = stmt
+                .query_row(params![model, &k[..]], |r| r.get(0))
+                .optional()
+                .map_err(sql)?;
+            out.push(match blob {
+                None => None,
+                Some(b) => {
+                    if b.is_empty() || b.len() % 4 != 0 || width.is_some_and(|w| w != b.len()) {
+                        return Err(CacheError::Corrupt {
+                            path: self.path.clone(),
+                            detail: format!("a stored vector has {} bytes, not a whole number of f32 of the model's width", b.len()),
+                        });
+                    }
+                    width = Some(b.len());
+                    Some(b.chunks_exact(4).map(|c| f32::from_le_bytes([c[0], c[1], c[2], c[3]])).collect())
+                }
+            });
+        }
+        Ok(out)
+    }
+
+    /// Store vectors in one transaction.
+    pub fn put_many(
+        &self,
+        fingerprint: &str,
+        items: &[([u8; 32], Vec<f32>)],
+    ) -> Result<(), CacheError> {
+        let sql = |source| CacheError::Sql {
+            path: self.path.clone(),
+            source,
+        };
+        let model = fingerprint_bytes(fingerprint);
+        let tx = self.conn.unchecked_transaction().map_err(sql)?;
+        {
+            let mut stmt = tx
+                .prepare_cached("INSERT OR REPLACE INTO vectors VALUES (?1, ?2, ?3)")
+                .map_err(sql)?;
+            for (k, v) in items {
+                stmt.execute(params![model, &k[..], to_blob(v)])
+                    .map_err(sql)?;
+            }
+        }
+        tx.commit().map_err(sql)
+    }
+
+    /// Vectors stored under a fingerprint.
+    pub fn count(&self, fingerprint: &str) -> Result<usize, CacheError> {
+        self.conn
+            .query_row(
+                "SELECT COUNT(*) FROM vectors WHERE model = ?1",
+                params![fingerprint_bytes(fingerprint)],
+                |r| r.get::<_, i64>(0),
+            )
+            .map(|n| n as usize)
+            .map_err(|source| CacheError::Sql {
+                path: self.path.clone(),
+                source,
+            })
+    }
+}
+
+fn fingerprint_bytes(f: &str) -> Vec<u8> {
+    Sha256::digest(f.as_bytes()).to_vec()
+}
+
+/// What a cached embedding call did.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, serde::Serialize)]
+pub struct CacheReport {
+    /// Inputs asked for.
+    pub inputs: usize,
+    /// Found in the cache (or repeated within the call).
+    pub hits: usize,
+    /// Embedded now.
+    pub embedded: usize,
+}
+
+/// Embed texts through the cache: look everything up, embed only the distinct misses (in
+/// groups of a few hundred, each stored as it is done so a killed run keeps its work), and
+/// report progress as (done, total).
+pub fn embed_with_cache(
+    embedder: &dyn crate::embed::Embedder,
+    cache: Option<&VectorCache>,
+    prefix: &str,
+    texts: &[&str],
+    progress: &mut dyn FnMut(usize, usize),
+) -> anyhow::Result<(Vec<Vec<f32>>, CacheReport)> {
+    let fp = embedder.fingerprint();
+    let keys: Vec<[u8; 32]> = texts.iter().map(|t| text_key(prefix, t)).collect();
+    let mut out: Vec<Option<Vec<f32>>> = match cache {
+        Some(c) => c.get_many(&fp, &keys)?,
+        None => vec![None; texts.len()],
+    };
+    let mut first_of: std::collections::HashMap<[u8; 32], usize> = std::collections::HashMap::new();
+    let mut misses: Vec<usize> = Vec::new();
+    for (i, k) in keys.iter().enumerate() {
+        if out[i].is_none() && !first_of.contains_key(k) {
+            first_of.insert(*k, i);
+            misses.push(i);
+        }
+    }
+    let total = misses.len();
+    progress(0, total);
+    let mut done = 0;
+    for group in misses.chunks(256) {
+        let inputs: Vec<String> = group
+            .iter()
+            .map(|&i| format!("{prefix}{}", texts[i]))
+            .collect();
+        let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
+        let vecs = embedder.embed(&refs)?;
+        if let Some(c) = cache {
+            let items: Vec<([u8; 32], Vec<f32>)> = group
+                .iter()
+                .map(|&i| keys[i])
+                .zip(vecs.iter().cloned())
+                .collect();
+            c.put_many(&fp, &items)?;
+        }
+        for (&i, v) in group.iter().zip(vecs) {
+            out[i] = Some(v);
+        }
+        done += group.len();
+        progress(done, total);
+    }
+    for i in 0..out.len() {
+        if out[i].is_none() {
+            out[i] = out[first_of[&keys[i]]].clone();
+        }
+    }
+    let report = CacheReport {
+        inputs: texts.len(),
+        hits: texts.len() - total,
+        embedded: total,
+    };
+    Ok((
+        out.into_iter().map(|v| v.expect("filled")).collect(),
+        report,
+    ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::embed::HashEmbedder;
+
+    #[test]
+    fn round_trip_and_reuse() {
+        let dir = tempfile::tempdir().unwrap();
+        let c = VectorCache::open(&dir.path().join("v.sqlite")).unwrap();
+        let e = HashEmbedder { dim: 8 };
+        let (v1, r1) =
+            embed_with_cache(&e, Some(&c), "", &["a b", "c d", "a b"], &mut |_, _| {}).unwrap();
+        assert_eq!(
+            r1,
+            CacheReport {
+                inputs: 3,
+                hits: 1,
+                embedded: 2
+            }
+        );
+        assert_eq!(v1[0], v1[2]);
+        let (v2, r2) = embed_with_cache(&e, Some(&c), "", &["c d", "a b"], &mut |_, _| {}).unwrap();
+        assert_eq!(r2.embedded, 0);
+        assert_eq!(v2[1], v1[0]);
+        // A prefix is part of the key.
+        let (_, r3) = embed_with_cache(&e, Some(&c), "query: ", &["a b"], &mut |_, _| {}).unwrap();
+        assert_eq!(r3.embedded, 1);
+        assert_eq!(c.count("hash-8").unwrap(), 3);
+    }
+
+    #[test]
+    fn corrupt_file_is_reported() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("v.sqlite");
+        std::fs::write(
+            &p,
+            b"this is not a database, just garbage bytes that fill a page....",
+        )
+        .unwrap();
+        let e = VectorCache::open(&p).err().unwrap().to_string();
+        assert!(
+            e.contains("is corrupt") && e.contains("--rebuild-cache"),
+            "{e}"
+        );
+        let c = VectorCache::rebuild(&p).unwrap();
+        assert_eq!(c.count("x").unwrap(), 0);
+    }
+
+    #[test]
+    fn wrong_length_blob_is_not_trusted() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("v.sqlite");
+        let c = VectorCache::open(&p).unwrap();
+        let k = text_key("", "x");
+        c.conn
+            .execute(
+                "INSERT INTO vectors VALUES (?1, ?2, ?3)",
+                params![fingerprint_bytes("m"), &k[..], vec![1u8, 2, 3]],
+            )
+            .unwrap();
+        let e = c.get_many("m", &[k]).err().unwrap().to_string();
+        assert!(e.contains("is corrupt"), "{e}");
+    }
+
+    #[test]
+    fn two_connections_write_concurrently() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("v.sqlite");
+        VectorCache::open(&p).unwrap();
+        let handles: Vec<_> = (0..4)
+            .map(|t| {
+                let p = p.clone();
+                std::thread::spawn(move || {
+                    let c = VectorCache::open(&p).unwrap();
+                    for i in 0..50 {
+                        c.put_many(
+                            "m",
+                            &[(text_key("", &format!("{t}-{i}")), vec![t as f32, i as f32])],
+                        )
+                        .unwrap();
+                    }
+                })
+            })
+            .collect();
+        for h in handles {
+            h.join().unwrap();
+        }
+        assert_eq!(VectorCache::open(&p).unwrap().count("m").unwrap(), 200);
+    }
+}
