@@ -15,8 +15,15 @@ def sha256(text: str) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
+def read_utf8(path) -> str:
+    """A file's text exactly as its bytes say: UTF-8, no newline translation (Path.read_text
+    would turn CRLF into LF, and the Rust side reads the raw bytes)."""
+    return Path(path).read_bytes().decode("utf-8")
+
+
 def lee_docs():
-    """The 50 Lee documents, one per line, Latin-1 (gensim 4.4.0 test data)."""
+    """The 50 Lee documents (gensim 4.4.0 test data): lee.cor decoded as Latin-1, split on "\n",
+    lines that are empty or all whitespace dropped; each document is its line as is."""
     raw = (TESTDATA / "lee" / "lee.cor").read_bytes().decode("latin-1")
     docs = [l for l in raw.split("\n") if l.strip()]
     assert len(docs) == 50, len(docs)
@@ -24,15 +31,17 @@ def lee_docs():
 
 
 def lee_human():
-    rows = [[float(x) for x in l.split()] for l in (TESTDATA / "lee" / "similarities0-1.txt").read_text().splitlines() if l.strip()]
+    text = (TESTDATA / "lee" / "similarities0-1.txt").read_bytes().decode("ascii")
+    rows = [[float(x) for x in l.split()] for l in text.splitlines() if l.strip()]
     assert len(rows) == 50 and all(len(r) == 50 for r in rows)
     return rows
 
 
 def versions():
     import importlib.metadata as md
-    out = {}
-    for p in ("torch", "transformers", "sentence-transformers", "numpy", "pytrec-eval-terrier"):
+    import platform
+    out = {"python": platform.python_version()}
+    for p in ("torch", "transformers", "tokenizers", "sentence-transformers", "numpy", "pytrec-eval-terrier"):
         try:
             out[p] = md.version(p)
         except md.PackageNotFoundError:
