@@ -12,6 +12,7 @@ use kerf::plan::{self, ResolvedPlan};
 use kerf::profile::Profile;
 use kerf::tokens::TokenCounter;
 
+mod comparecmd;
 mod cut;
 mod embed;
 mod explore;
@@ -40,6 +41,8 @@ enum Command {
     Cut(cut::CutArgs),
     /// Embed every chunk on CPU and write vectors (NumPy .npy or Parquet) with a manifest.
     Embed(embed::EmbedArgs),
+    /// Compare plans against reference texts: rankings, metrics, shifts against the baseline.
+    Compare(comparecmd::CompareArgs),
     /// Check, show or create profiles.
     #[command(subcommand)]
     Profile(profilecmd::ProfileCmd),
@@ -195,6 +198,7 @@ pub fn run() -> ExitCode {
         Command::Survey(a) => survey::run(a),
         Command::Cut(a) => cut::run(a),
         Command::Embed(a) => embed::run(a),
+        Command::Compare(a) => comparecmd::run(a),
         Command::Profile(c) => profilecmd::run(c),
         Command::Explore(a) => explore::run(a),
     };

@@ -285,3 +285,126 @@ mod tests {
         assert_eq!(tau_between(&s[0], &s[0]), 1.0);
     }
 }
+
+/// Everything measured about one plan over a corpus and references.
+pub struct PlanEval {
+    /// The plan.
+    pub plan: ResolvedPlan,
+    /// Chunks of each document.
+    pub chunks: Vec<Vec<Chunk>>,
+    /// Per reference, documents best first.
+    pub scores: Vec<Vec<DocScore>>,
+    /// Ranking metrics.
+    pub summary: Summary,
+    /// Mean score of expected documents.
+    pub mean_expected: Option<f64>,
+    /// Encoder-input tokens of all chunks.
+    pub input_tokens: usize,
+    /// Chunks embedded now (not found in the cache).
+    pub embedded: usize,
+}
+
+/// Embed reference texts (each with its own prefix) through the cache.
+pub fn embed_refs(
+    embedder: &dyn crate::embed::Embedder,
+    cache: Option<&crate::cache::VectorCache>,
+    refs: &[Reference],
+) -> anyhow::Result<Vec<Vec<f32>>> {
+    let mut out = vec![Vec::new(); refs.len()];
+    let mut prefixes: Vec<&str> = refs.iter().map(|r| r.prefix.as_str()).collect();
+    prefixes.sort();
+    prefixes.dedup();
+    for p in prefixes {
+        let idx: Vec<usize> = (0..refs.len()).filter(|&i| refs[i].prefix == p).collect();
+        let texts: Vec<&str> = idx.iter().map(|&i| refs[i].text.as_str()).collect();
+        let (v, _) = crate::cache::embed_with_cache(embedder, cache, p, &texts, &mut |_, _| {})?;
+        for (i, v) in idx.into_iter().zip(v) {
+            out[i] = v;
+        }
+    }
+    Ok(out)
+}
+
+/// Chunk vectors of a corpus under a plan, through the cache.
+pub fn embed_chunks(
+    corpus: &Corpus,
+    chunks: &[Vec<Chunk>],
+    plan: &ResolvedPlan,
+    embedder: &dyn crate::embed::Embedder,
+    cache: Option<&crate::cache::VectorCache>,
+    progress: &mut dyn FnMut(usize, usize),
+) -> anyhow::Result<(Vec<Vec<Vec<f32>>>, usize)> {
+    let texts: Vec<&str> = corpus
+        .docs
+        .iter()
+        .zip(chunks)
+        .flat_map(|(d, cs)| cs.iter().map(move |c| &d.text[c.byte_range.clone()]))
+        .collect();
+    let (flat, report) = crate::cache::embed_with_cache(
+        embedder,
+        cache,
+        &plan.profile.cut.prefix,
+        &texts,
+        progress,
+    )?;
+    Ok((unflatten(chunks, flat), report.embedded))
+}
+
+/// Cut, embed, score and measure one plan.
+#[allow(clippy::too_many_arguments)]
+pub fn evaluate_plan(
+    corpus: &Corpus,
+    refs: &[Reference],
+    ref_vectors: &[Vec<f32>],
+    plan: &ResolvedPlan,
+    counter: &TokenCounter,
+    embedder: &dyn crate::embed::Embedder,
+    cache: Option<&crate::cache::VectorCache>,
+    progress: &mut dyn FnMut(usize, usize),
+) -> anyhow::Result<PlanEval> {
+    let chunks = cut_corpus(corpus, plan, counter);
+    let (vectors, embedded) = embed_chunks(corpus, &chunks, plan, embedder, cache, progress)?;
+    Ok(score_plan(
+        corpus,
+        refs,
+        ref_vectors,
+        plan,
+        chunks,
+        &vectors,
+        embedded,
+    ))
+}
+
+/// Score already-embedded chunks under a plan's aggregation.
+pub fn score_plan(
+    corpus: &Corpus,
+    refs: &[Reference],
+    ref_vectors: &[Vec<f32>],
+    plan: &ResolvedPlan,
+    chunks: Vec<Vec<Chunk>>,
+    vectors: &[Vec<Vec<f32>>],
+    embedded: usize,
+) -> PlanEval {
+    let scores = score_all(
+        corpus,
+        ref_vectors,
+        vectors,
+        &chunks,
+        plan.profile.pool.chunks,
+        plan.profile.pool.temperature,
+    );
+    let input_tokens = chunks
+        .iter()
+        .flatten()
+        .map(|c| plan.input_tokens(c.content_tokens))
+        .sum();
+    PlanEval {
+        summary: summarize(corpus, refs, &scores),
+        mean_expected: mean_expected_score(corpus, refs, &scores),
+        plan: plan.clone(),
+        chunks,
+        scores,
+        input_tokens,
+        embedded,
+    }
+}
