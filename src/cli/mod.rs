@@ -19,6 +19,7 @@ mod explore;
 mod modelcmd;
 mod profilecmd;
 mod survey;
+mod sweepcmd;
 
 #[derive(Parser)]
 #[command(
@@ -43,6 +44,8 @@ enum Command {
     Embed(embed::EmbedArgs),
     /// Compare plans against reference texts: rankings, metrics, shifts against the baseline.
     Compare(comparecmd::CompareArgs),
+    /// Sweep a grid of plans: quality against cost, the Pareto front, a recommended profile.
+    Sweep(sweepcmd::SweepArgs),
     /// Check, show or create profiles.
     #[command(subcommand)]
     Profile(profilecmd::ProfileCmd),
@@ -199,6 +202,7 @@ pub fn run() -> ExitCode {
         Command::Cut(a) => cut::run(a),
         Command::Embed(a) => embed::run(a),
         Command::Compare(a) => comparecmd::run(a),
+        Command::Sweep(a) => sweepcmd::run(a),
         Command::Profile(c) => profilecmd::run(c),
         Command::Explore(a) => explore::run(a),
     };

@@ -1,0 +1,400 @@
+//! `kerf sweep`: a grid of plans, quality against cost, the Pareto front, a recommendation.
+use std::io::{IsTerminal, Write};
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::Instant;
+
+use anyhow::{Context, Result};
+use clap::{Args, ValueEnum};
+
+use kerf::compare::engine::{self, Corpus};
+use kerf::compare::refs::{self, Reference};
+use kerf::compare::sweep::{self, Cost, Grid};
+use kerf::plan;
+use kerf::profile::Profile;
+
+use super::comparecmd::{read_corpus, Encoders};
+use super::embed::EncoderArgs;
+use super::{load_plan, InputArgs, PlanArgs};
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum Metric {
+    /// nDCG@10.
+    Ndcg,
+    /// MRR@10.
+    Mrr,
+    /// Recall@10.
+    Recall,
+}
+
+#[derive(Args)]
+pub struct SweepArgs {
+    #[command(flatten)]
+    pub input: InputArgs,
+    /// Reference texts: kerf TOML, or a TREC queries file (with --qrels).
+    #[arg(long)]
+    pub refs: PathBuf,
+    /// TREC qrels beside a queries file given as --refs.
+    #[arg(long)]
+    pub qrels: Option<PathBuf>,
+    /// Grid: `window=128,256 overlap=0,32 boundary=token,sentence tokens=mean chunks=mean,best precision=f32`.
+    #[arg(long, default_value = "")]
+    pub grid: String,
+    /// Base profile for everything the grid does not vary (model, prefix, min_chunk).
+    #[arg(long, short = 'p')]
+    pub profile: Option<PathBuf>,
+    /// Model folder.
+    #[arg(long)]
+    pub model: Option<PathBuf>,
+    /// Quality measure on the front.
+    #[arg(long, value_enum, default_value = "ndcg")]
+    pub metric: Metric,
+    /// Plans within this much of the best quality count as equally good.
+    #[arg(long, default_value_t = 0.01)]
+    pub tolerance: f64,
+    /// Refuse grids with more plans than this (on a terminal, ask instead).
+    #[arg(long, default_value_t = 60)]
+    pub max_plans: usize,
+    /// Answer yes to the plan-count question.
+    #[arg(long, short = 'y')]
+    pub yes: bool,
+    /// Sweep a length-stratified sample of N documents and extrapolate cost.
+    #[arg(long)]
+    pub sample: Option<usize>,
+    /// Write the recommended plan as a profile.
+    #[arg(long)]
+    pub save_best: Option<PathBuf>,
+    /// Write a quality-against-cost chart (SVG).
+    #[arg(long)]
+    pub chart: Option<PathBuf>,
+    /// Machine-readable output (JSON).
+    #[arg(long)]
+    pub json: bool,
+    #[command(flatten)]
+    pub encoder: EncoderArgs,
+}
+
+struct Row {
+    profile: Profile,
+    quality: f64,
+    summary: kerf::compare::metrics::Summary,
+    cost: Cost,
+}
+
+fn chart(path: &std::path::Path, rows: &[Row], front: &[usize], metric: &str) -> Result<()> {
+    use plotters::prelude::*;
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
+        root.fill(&WHITE)?;
+        let xmax = rows
+            .iter()
+            .map(|r| r.cost.input_tokens as f64)
+            .fold(1.0, f64::max)
+            * 1.08;
+        let ymax = rows.iter().map(|r| r.quality).fold(0.0, f64::max).max(0.05) * 1.1;
+        let mut c = ChartBuilder::on(&root)
+            .caption(
+                format!("kerf sweep: {metric} against tokens embedded"),
+                ("sans-serif", 22),
+            )
+            .margin(20)
+            .x_label_area_size(45)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0.0..xmax, 0.0..ymax.min(1.0))?;
+        c.configure_mesh()
+            .x_desc("encoder-input tokens (cost)")
+            .y_desc(metric)
+            .draw()?;
+        let mut on_front: Vec<(f64, f64)> = front
+            .iter()
+            .map(|&i| (rows[i].cost.input_tokens as f64, rows[i].quality))
+            .collect();
+        on_front.sort_by(|a, b| a.0.total_cmp(&b.0));
+        c.draw_series(LineSeries::new(
+            on_front.clone(),
+            RGBColor(200, 80, 30).stroke_width(2),
+        ))?;
+        c.draw_series(rows.iter().enumerate().map(|(i, r)| {
+            let front_pt = front.contains(&i);
+            Circle::new(
+                (r.cost.input_tokens as f64, r.quality),
+                if front_pt { 6 } else { 4 },
+                if front_pt {
+                    RGBColor(200, 80, 30).filled()
+                } else {
+                    RGBColor(90, 110, 140).filled()
+                },
+            )
+        }))?;
+        c.draw_series(front.iter().map(|&i| {
+            Text::new(
+                rows[i].profile.name.clone(),
+                (rows[i].cost.input_tokens as f64, rows[i].quality),
+                ("sans-serif", 12),
+            )
+        }))?;
+        root.present()?;
+    }
+    kerf::output::write_atomic(path, svg.as_bytes(), true)?;
+    Ok(())
+}
+
+pub fn run(a: SweepArgs) -> Result<()> {
+    let grid = Grid::parse(&a.grid)?;
+    let base_loaded = load_plan(
+        &PlanArgs {
+            profile: a.profile.clone(),
+            model: a.model.clone(),
+        },
+        |_| Profile::default(),
+    )?;
+    let mut base = base_loaded.plan.profile.clone();
+    base.model.folder = Some(base_loaded.info.dir.clone());
+    let plans = grid.plans(&base);
+    anyhow::ensure!(
+        !plans.is_empty(),
+        "the grid gives no valid plan (check windows against overlaps)"
+    );
+    let groups = sweep::group_plans(&plans);
+    if plans.len() > a.max_plans && !a.yes {
+        let question = format!(
+            "the grid has {} plans ({} distinct chunk sets to embed), more than --max-plans {}",
+            plans.len(),
+            groups.len(),
+            a.max_plans
+        );
+        if std::io::stdin().is_terminal() && std::io::stderr().is_terminal() {
+            eprint!("kerf: {question}. Run them all? [y/N] ");
+            let mut answer = String::new();
+            std::io::stdin().read_line(&mut answer)?;
+            if !answer.trim().eq_ignore_ascii_case("y") {
+                anyhow::bail!("sweep cancelled");
+            }
+        } else {
+            anyhow::bail!("{question}; raise --max-plans or pass --yes");
+        }
+    }
+    let references: Vec<Reference> = refs::load(&a.refs, a.qrels.as_deref())?;
+    let full = read_corpus(&a.input, &base_loaded)?;
+    refs::check_known(&references, &full.ids(), &a.refs.display().to_string())?;
+    let total_tokens = full.content_tokens();
+    // Sample: every expected document plus evenly spread others by length.
+    let (corpus, scale) = match a.sample {
+        Some(n) if n < full.docs.len() => {
+            let lengths: Vec<usize> = full.analyses.iter().map(|x| x.tokens.len()).collect();
+            let must: Vec<usize> = full
+                .docs
+                .iter()
+                .enumerate()
+                .filter(|(_, d)| references.iter().any(|r| r.expect.contains_key(&d.id)))
+                .map(|(i, _)| i)
+                .collect();
+            let pick = sweep::stratified_sample(&lengths, &must, n);
+            let docs: Vec<_> = pick.iter().map(|&i| full.docs[i].clone()).collect();
+            let sample = Corpus::new(docs, &base_loaded.counter)?;
+            let scale = total_tokens as f64 / sample.content_tokens().max(1) as f64;
+            eprintln!(
+                "kerf: sweeping a length-stratified sample of {} of {} documents; costs are extrapolated ×{scale:.2} to the whole corpus",
+                sample.docs.len(),
+                full.docs.len()
+            );
+            (sample, scale)
+        }
+        _ => (full, 1.0),
+    };
+    let stop = Arc::new(AtomicBool::new(false));
+    {
+        let stop = stop.clone();
+        let _ = ctrlc::set_handler(move || stop.store(true, Ordering::SeqCst));
+    }
+    let cache = a.encoder.open_cache()?;
+    let mut encoders = Encoders::new(&a.encoder);
+    let mut rows: Vec<Row> = Vec::new();
+    let (mut embedded, mut scored, mut enc_seconds, mut enc_tokens) =
+        (0usize, 0usize, 0.0f64, 0usize);
+    let bar = super::embed::progress_bar(groups.len(), a.encoder.quiet, "sweep");
+    let mut interrupted = false;
+    for (gi, (_, members)) in groups.iter().enumerate() {
+        if stop.load(Ordering::SeqCst) {
+            interrupted = true;
+            break;
+        }
+        let first = &plans[members[0]];
+        let l = load_plan(
+            &PlanArgs {
+                profile: None,
+                model: first.model.folder.clone(),
+            },
+            |_| first.clone(),
+        )?;
+        let resolved = plan::resolve(first, &l.info, &l.counter, &first.name)?;
+        let e = encoders.get(&l)?;
+        let rv = engine::embed_refs(e.as_ref(), cache.as_ref(), &references)?;
+        let chunks = engine::cut_corpus(&corpus, &resolved, &l.counter);
+        let before = e.stats();
+        let t0 = Instant::now();
+        let (vectors, n_new) = engine::embed_chunks(
+            &corpus,
+            &chunks,
+            &resolved,
+            e.as_ref(),
+            cache.as_ref(),
+            &mut |_, _| {},
+        )?;
+        let after = e.stats();
+        enc_seconds += t0.elapsed().as_secs_f64();
+        enc_tokens += after.real_tokens - before.real_tokens;
+        embedded += n_new;
+        let padding = after.padded_tokens.saturating_sub(after.real_tokens)
+            - before.padded_tokens.saturating_sub(before.real_tokens);
+        for &pi in members {
+            let mut rp = resolved.clone();
+            rp.profile = plans[pi].clone();
+            let ev = engine::score_plan(
+                &corpus,
+                &references,
+                &rv,
+                &rp,
+                chunks.clone(),
+                &vectors,
+                n_new,
+            );
+            let n_chunks: usize = ev.chunks.iter().map(Vec::len).sum();
+            scored += n_chunks;
+            let quality = match a.metric {
+                Metric::Ndcg => ev.summary.ndcg_at_10,
+                Metric::Mrr => ev.summary.mrr_at_10,
+                Metric::Recall => ev.summary.recall_at_10,
+            };
+            let dim = e.dim();
+            let cost = Cost {
+                chunks: (n_chunks as f64 * scale).round() as usize,
+                input_tokens: (ev.input_tokens as f64 * scale).round() as usize,
+                overhead: ev.input_tokens as f64 / corpus.content_tokens().max(1) as f64,
+                padding_tokens: (padding as f64 * scale).round() as usize,
+                embed_seconds: 0.0,
+                storage_f32_bytes: (n_chunks as f64 * scale) as usize * dim * 4,
+                storage_f16_bytes: (n_chunks as f64 * scale) as usize * dim * 2,
+            };
+            rows.push(Row {
+                profile: plans[pi].clone(),
+                quality,
+                summary: ev.summary,
+                cost,
+            });
+        }
+        if let Some(b) = &bar {
+            b.set_position(gi as u64 + 1);
+        }
+    }
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    anyhow::ensure!(!rows.is_empty(), "sweep interrupted before any plan finished (vectors embedded so far are kept in the cache)");
+    // Time estimates from the throughput measured in this sweep (a fixed guess when everything
+    // came from the cache).
+    let tokens_per_second = if enc_seconds > 0.5 && enc_tokens > 0 {
+        enc_tokens as f64 / enc_seconds
+    } else {
+        0.0
+    };
+    for r in &mut rows {
+        r.cost.embed_seconds = if tokens_per_second > 0.0 {
+            r.cost.input_tokens as f64 / tokens_per_second
+        } else {
+            f64::NAN
+        };
+    }
+    let points: Vec<(f64, f64)> = rows
+        .iter()
+        .map(|r| (r.quality, r.cost.input_tokens as f64))
+        .collect();
+    let names: Vec<String> = rows.iter().map(|r| r.profile.name.clone()).collect();
+    let front = sweep::pareto_front(&points);
+    let metric = match a.metric {
+        Metric::Ndcg => "nDCG@10",
+        Metric::Mrr => "MRR@10",
+        Metric::Recall => "Recall@10",
+    };
+    let rec = sweep::recommend(&names, &points, a.tolerance, metric);
+    if let (Some(path), Some((i, why))) = (&a.save_best, &rec) {
+        let mut p = rows[*i].profile.clone();
+        p.about = format!("recommended by kerf sweep: {why}");
+        kerf::output::write_atomic(path, p.to_toml().as_bytes(), true)
+            .with_context(|| format!("saving {}", path.display()))?;
+        eprintln!("kerf: wrote the recommended plan to {}", path.display());
+    }
+    if let Some(path) = &a.chart {
+        chart(path, &rows, &front, metric)
+            .with_context(|| format!("drawing {}", path.display()))?;
+        eprintln!("kerf: wrote the chart to {}", path.display());
+    }
+    let mut out = std::io::BufWriter::new(std::io::stdout().lock());
+    if a.json {
+        let plans_json: Vec<serde_json::Value> = rows
+            .iter()
+            .enumerate()
+            .map(|(i, r)| serde_json::json!({ "name": r.profile.name, "profile": r.profile, "quality": r.quality, "summary": r.summary, "cost": r.cost, "pareto": front.contains(&i) }))
+            .collect();
+        writeln!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(&serde_json::json!({
+                "metric": metric,
+                "plans": plans_json,
+                "recommended": rec.as_ref().map(|(i, why)| serde_json::json!({"name": names[*i], "reason": why})),
+                "chunk_sets": groups.len(),
+                "chunks_embedded": embedded,
+                "chunks_scored": scored,
+                "tokens_per_second": tokens_per_second,
+                "sampled": scale != 1.0,
+                "interrupted": interrupted,
+            }))?
+        )?;
+    } else {
+        let w = names.iter().map(|n| n.len()).max().unwrap_or(8).max(8);
+        writeln!(
+            out,
+            "  {:<w$} {:>8} {:>7} {:>7} {:>8} {:>10} {:>8} {:>8} {:>10}",
+            "plan", metric, "MRR@10", "R@10", "chunks", "tokens", "overhead", "time", "f32 store"
+        )?;
+        for (i, r) in rows.iter().enumerate() {
+            writeln!(
+                out,
+                "{} {:<w$} {:>8.3} {:>7.3} {:>7.3} {:>8} {:>10} {:>7.2}x {:>7.0}s {:>9.1}M",
+                if front.contains(&i) { "◆" } else { " " },
+                r.profile.name,
+                r.quality,
+                r.summary.mrr_at_10,
+                r.summary.recall_at_10,
+                r.cost.chunks,
+                super::survey::thousands(r.cost.input_tokens),
+                r.cost.overhead,
+                r.cost.embed_seconds,
+                r.cost.storage_f32_bytes as f64 / 1e6
+            )?;
+        }
+        writeln!(out, "◆ on the quality/cost front · {} chunk sets for {} plans: {embedded} chunks embedded, {scored} chunks scored{}", groups.len(), rows.len(), if tokens_per_second > 0.0 { format!(" · {tokens_per_second:.0} tokens/s measured") } else { String::new() })?;
+        if scale != 1.0 {
+            writeln!(
+                out,
+                "costs extrapolated from a sample to the whole corpus (×{scale:.2})"
+            )?;
+        }
+        if interrupted {
+            writeln!(
+                out,
+                "interrupted: {} of {} plans finished; their vectors stay in the cache",
+                rows.len(),
+                plans.len()
+            )?;
+        }
+        if let Some((_, why)) = &rec {
+            writeln!(out, "recommended: {why}")?;
+        }
+    }
+    out.flush()?;
+    Ok(())
+}
