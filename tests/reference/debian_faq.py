@@ -19,9 +19,10 @@ Parse rule (kerf's Rust side reimplements it; body sha256s in the fixture check 
     line (or the end of the file).
   * Inside a chapter, a section heading starts at a line matching
     ^(\\d+\\.\\d+(?:\\.\\d+)?)\\.\\u00a0(.*)$ (N.M. or N.M.K., no-break space after the number's
-    final dot) and continues over the following lines up to (not including) the next empty
-    line ("" exactly; wrapped headings). Its text is group 2 and the continuation lines, each
-    stripped of surrounding whitespace, joined with single spaces.
+    final dot) and continues over the following lines up to (not including) the next blank
+    line, i.e. a line that is empty or only whitespace (wrapped headings). Its text is group 2
+    and the continuation lines, each stripped of surrounding whitespace, joined with single
+    spaces.
   * The chapter body is the chapter's remaining lines (everything except its heading lines,
     continuation lines included in "heading lines"), joined with "\\n", nothing stripped: it
     starts with the empty line after the chapter line and keeps indentation, blank lines,
@@ -83,10 +84,10 @@ while i < len(lines):
             n_headings += 1
             parts = [h.group(2).strip()]
             i += 1
-            while i < len(lines) and lines[i] != "":
+            while i < len(lines) and lines[i].strip():
                 parts.append(lines[i].strip())
                 i += 1
-            title = " ".join(p for p in parts if p)
+            title = " ".join(parts)
             if title.endswith("?"):
                 questions.append({"section": h.group(1), "text": title, "chapter": cur["number"]})
             continue
