@@ -1751,25 +1751,6 @@ mod tests {
             assert!(list.iter().all(|w| w.len() <= 16 && *w == w.to_lowercase()));
         }
     }
-
-    /// Throughput on a large synthetic text; run with
-    /// `cargo test --release --lib segment::tests::throughput -- --ignored --nocapture`.
-    #[test]
-    #[ignore = "timing print, not a check"]
-    fn throughput() {
-        let unit = "# Notes\n\nMr. J. T. Smith paid $100.00 at 5 p.m. on Sept. 12... Then he left! See https://example.com/a?b=1 or e.g. Fig. 3.\nThe line wraps here and goes on (for a while).\n\n- item one. Still one.\n- item two\n\n```\ncode line\n\nmore code\n```\n| a | b |\n|---|---|\n\n東京です。大阪です。\n\n";
-        let text = unit.repeat(50 * 1024 * 1024 / unit.len());
-        let t0 = std::time::Instant::now();
-        let s = segment(&text);
-        let secs = t0.elapsed().as_secs_f64();
-        println!(
-            "segment: {:.1} MB in {secs:.2} s = {:.1} MB/s ({} paragraphs, {} sentences)",
-            text.len() as f64 / 1e6,
-            text.len() as f64 / 1e6 / secs,
-            s.paragraphs.len(),
-            s.sentences.len()
-        );
-    }
 }
 
 #[cfg(test)]
