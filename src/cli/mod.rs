@@ -15,7 +15,6 @@ use kerf::tokens::TokenCounter;
 mod comparecmd;
 mod cut;
 mod embed;
-mod explore;
 mod modelcmd;
 mod profilecmd;
 mod survey;
@@ -49,8 +48,6 @@ enum Command {
     /// Check, show or create profiles.
     #[command(subcommand)]
     Profile(profilecmd::ProfileCmd),
-    /// Explore plans live in the terminal: budgets, chunk boundaries, similarity.
-    Explore(explore::ExploreArgs),
 }
 
 /// Inputs shared by every command that reads a corpus.
@@ -204,7 +201,6 @@ pub fn run() -> ExitCode {
         Command::Compare(a) => comparecmd::run(a),
         Command::Sweep(a) => sweepcmd::run(a),
         Command::Profile(c) => profilecmd::run(c),
-        Command::Explore(a) => explore::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -1,1 +1,0 @@
-//! The planning terminal UI's state and rendering (placeholder until the UI lands).
