@@ -2,7 +2,7 @@
 //! human similarity judgments (Lee, Pincombe & Welsh 2005, gensim 4.4.0 test data).
 mod common;
 
-use kerf::embed::{BertEmbedder, EmbedOptions, Embedder};
+use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, Engine, Precision, TokenPooling};
 use kerf::pool::cosine;
 
 fn fixture(name: &str) -> serde_json::Value {
@@ -67,6 +67,75 @@ fn vectors_match_sentence_transformers() {
     // Batch composition does not change a text's vector beyond float noise.
     let alone = e.embed(&[texts[3]]).unwrap();
     assert!(cosine(&alone[0], &got[3]) > 0.999999);
+}
+
+fn fixture_texts() -> Vec<String> {
+    fixture("st_vectors.json")["texts"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| t["text"].as_str().unwrap().to_string())
+        .collect()
+}
+
+fn encoder_with(engine: Engine, precision: Precision, pooling: TokenPooling) -> BertEmbedder {
+    BertEmbedder::load(
+        &common::model_dir(),
+        &EmbedOptions {
+            max_input_tokens: 256,
+            engine,
+            precision,
+            pooling: Some(pooling),
+            ..Default::default()
+        },
+    )
+    .unwrap()
+}
+
+#[test]
+fn packed_engine_agrees_with_stock_candle_for_every_token_pooling() {
+    // Reference: candle-transformers' stock BertModel (crates.io, padded batches with an
+    // attention mask), on the same weights. Mean is also checked against sentence-transformers
+    // above; cls and max have no sentence-transformers fixture, so candle is their reference.
+    let texts = fixture_texts();
+    let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
+    for pooling in [TokenPooling::Mean, TokenPooling::Cls, TokenPooling::Max] {
+        let a = encoder_with(Engine::Packed, Precision::F32, pooling)
+            .embed(&refs)
+            .unwrap();
+        let b = encoder_with(Engine::Candle, Precision::F32, pooling)
+            .embed(&refs)
+            .unwrap();
+        let worst = a
+            .iter()
+            .zip(&b)
+            .map(|(x, y)| cosine(x, y))
+            .fold(1.0f32, f32::min);
+        println!("{pooling:?}: worst cosine packed vs candle {worst:.8}");
+        assert!(worst >= 0.99999, "{pooling:?}: worst cosine {worst}");
+    }
+}
+
+#[test]
+fn bf16_weights_cost_little_accuracy() {
+    // Tolerance: bf16 keeps 8 bits of mantissa, so the measured worst cosine to the f32
+    // vectors (0.999988 on this fixture, see notes/encoder-speed.md) is held at >= 0.9995.
+    let texts = fixture_texts();
+    let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
+    let f = encoder_with(Engine::Packed, Precision::F32, TokenPooling::Mean)
+        .embed(&refs)
+        .unwrap();
+    let b = encoder_with(Engine::Packed, Precision::Bf16, TokenPooling::Mean)
+        .embed(&refs)
+        .unwrap();
+    let worst = f
+        .iter()
+        .zip(&b)
+        .map(|(x, y)| cosine(x, y))
+        .fold(1.0f32, f32::min);
+    println!("bf16: worst cosine to f32 {worst:.6}");
+    assert!(worst >= 0.9995, "worst cosine {worst}");
+    assert!(worst < 1.0, "bf16 rounding changed nothing: the precision switch is not applied");
 }
 
 #[test]

@@ -40,9 +40,21 @@ pub struct EncoderArgs {
     /// Tokens per encoder batch.
     #[arg(long, default_value_t = 8192)]
     pub batch_tokens: usize,
+    /// Forward pass: `packed` (kerf's padding-free pass) or `candle` (the stock candle BERT,
+    /// slower, kept as the correctness reference).
+    #[arg(long, default_value = "packed", value_parser = parse_engine)]
+    pub engine: kerf::embed::Engine,
     /// No progress bar.
     #[arg(long, short = 'q')]
     pub quiet: bool,
+}
+
+fn parse_engine(s: &str) -> Result<kerf::embed::Engine, String> {
+    match s {
+        "packed" => Ok(kerf::embed::Engine::Packed),
+        "candle" => Ok(kerf::embed::Engine::Candle),
+        _ => Err(format!("`{s}` is not an engine (packed or candle)")),
+    }
 }
 
 impl EncoderArgs {

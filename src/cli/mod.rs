@@ -143,6 +143,7 @@ pub fn load_embedder(
         max_batch_tokens: enc.batch_tokens,
         threads: enc.threads,
         precision: p.pool.precision,
+        engine: enc.engine,
     };
     Ok(std::sync::Arc::new(kerf::embed::BertEmbedder::load(
         &loaded.info.dir,

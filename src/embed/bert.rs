@@ -10,11 +10,19 @@ use candle_transformers::models::bert::{BertModel, Config};
 use sha2::{Digest, Sha256};
 use tokenizers::{Tokenizer, TruncationParams};
 
-use super::{EmbedError, EmbedOptions, EmbedStats, Embedder, Precision, TokenPooling};
+use super::packed::{self, PackedModel};
+use super::{EmbedError, EmbedOptions, EmbedStats, Embedder, Engine, Precision, TokenPooling};
+
+/// The forward pass behind a [`BertEmbedder`].
+enum Runner {
+    Packed(PackedModel),
+    Candle(BertModel),
+}
 
 /// A BERT-family sentence encoder.
 pub struct BertEmbedder {
-    model: BertModel,
+    runner: Runner,
+    threads: usize,
     tokenizer: Tokenizer,
     pooling: TokenPooling,
     normalize: bool,
@@ -122,11 +130,16 @@ impl BertEmbedder {
     /// Load a model folder: config.json, model.safetensors (memory-mapped), tokenizer.json and,
     /// where present, 1_Pooling/config.json and modules.json.
     pub fn load(dir: &Path, opts: &EmbedOptions) -> Result<Self, EmbedError> {
-        if opts.precision != Precision::F32 {
+        if opts.precision != Precision::F32 && opts.engine == Engine::Candle {
             return Err(EmbedError::Unsupported(format!(
-                "precision {:?} is not available in this build; use precision = \"f32\"",
+                "precision {:?} needs the packed engine; the candle reference runs f32 only",
                 opts.precision
             )));
+        }
+        if opts.precision == Precision::Int8 {
+            return Err(EmbedError::Unsupported(
+                "precision int8 is not available in this build; use \"f32\" or \"bf16\"".into(),
+            ));
         }
         let cfg_path = dir.join("config.json");
         let raw = read_json(&cfg_path)?;
@@ -210,16 +223,52 @@ impl BertEmbedder {
         h.update(&tok_bytes);
         h.update(
             format!(
-                "{pooling:?}/{normalize}/{}/{:?}",
-                opts.max_input_tokens, opts.precision
+                "{pooling:?}/{normalize}/{}/{:?}/{:?}",
+                opts.max_input_tokens, opts.precision, opts.engine
             )
             .as_bytes(),
         );
         let fingerprint: String = h.finalize().iter().map(|b| format!("{b:02x}")).collect();
 
-        let vb = VarBuilder::from_slice_safetensors(&mmap, DType::F32, &Device::Cpu)
-            .map_err(|e| file_err(&weights_path, e))?;
-        let model = BertModel::load(vb, &config).map_err(|e| file_err(&weights_path, e))?;
+        let runner = match opts.engine {
+            Engine::Candle => {
+                let vb = VarBuilder::from_slice_safetensors(&mmap, DType::F32, &Device::Cpu)
+                    .map_err(|e| file_err(&weights_path, e))?;
+                Runner::Candle(
+                    BertModel::load(vb, &config).map_err(|e| file_err(&weights_path, e))?,
+                )
+            }
+            Engine::Packed => {
+                use candle_transformers::models::bert::HiddenAct;
+                if !matches!(config.hidden_act, HiddenAct::Gelu) {
+                    return Err(EmbedError::Unsupported(format!(
+                        "{}: hidden_act {:?} is not supported by the packed engine (it runs \"gelu\"); use the candle engine",
+                        cfg_path.display(),
+                        config.hidden_act
+                    )));
+                }
+                if config.hidden_size % config.num_attention_heads != 0 {
+                    return Err(file_err(
+                        &cfg_path,
+                        "hidden_size is not a multiple of num_attention_heads",
+                    ));
+                }
+                let dims = packed::Dims {
+                    hidden: config.hidden_size,
+                    heads: config.num_attention_heads,
+                    intermediate: config.intermediate_size,
+                    layers: config.num_hidden_layers,
+                    positions: config.max_position_embeddings,
+                    vocab: config.vocab_size,
+                    eps: config.layer_norm_eps as f32,
+                };
+                let st = safetensors::SafeTensors::deserialize(&mmap)
+                    .map_err(|e| file_err(&weights_path, e))?;
+                let mut model = packed::load(&st, dims).map_err(|e| file_err(&weights_path, e))?;
+                model.set_precision(opts.precision);
+                Runner::Packed(model)
+            }
+        };
         let threads = if opts.threads == 0 {
             std::thread::available_parallelism().map_or(1, |n| n.get())
         } else {
@@ -230,7 +279,8 @@ impl BertEmbedder {
             .build()
             .map_err(|e| EmbedError::Run(e.to_string()))?;
         Ok(Self {
-            model,
+            runner,
+            threads,
             tokenizer,
             pooling,
             normalize,
@@ -248,6 +298,28 @@ impl BertEmbedder {
     }
 
     fn run_batch(&self, ids: &[&[u32]]) -> Result<Vec<Vec<f32>>, EmbedError> {
+        let rows = match &self.runner {
+            Runner::Candle(model) => self.run_candle(model, ids)?,
+            Runner::Packed(model) => {
+                let hidden = model.forward(ids, self.threads);
+                let mut out = Vec::with_capacity(ids.len());
+                let mut off = 0;
+                for s in ids {
+                    let rows = &hidden[off * self.dim..(off + s.len()) * self.dim];
+                    out.push(packed::pool_tokens(rows, self.dim, self.pooling));
+                    off += s.len();
+                }
+                out
+            }
+        };
+        Ok(if self.normalize {
+            rows.into_iter().map(crate::pool::normalize).collect()
+        } else {
+            rows
+        })
+    }
+
+    fn run_candle(&self, model: &BertModel, ids: &[&[u32]]) -> Result<Vec<Vec<f32>>, EmbedError> {
         let run = |e: candle_core::Error| EmbedError::Run(e.to_string());
         let len = ids.iter().map(|x| x.len()).max().unwrap_or(0);
         let b = ids.len();
@@ -263,8 +335,7 @@ impl BertEmbedder {
         let input = Tensor::from_vec(flat, (b, len), &dev).map_err(run)?;
         let types = input.zeros_like().map_err(run)?;
         let mask_t = Tensor::from_vec(mask, (b, len), &dev).map_err(run)?;
-        let hidden = self
-            .model
+        let hidden = model
             .forward(&input, &types, Some(&mask_t))
             .map_err(run)?; // (b, len, dim)
         let pooled = match self.pooling {
@@ -292,12 +363,7 @@ impl BertEmbedder {
                     .map_err(run)?
             }
         };
-        let rows: Vec<Vec<f32>> = pooled.to_vec2::<f32>().map_err(run)?;
-        Ok(if self.normalize {
-            rows.into_iter().map(crate::pool::normalize).collect()
-        } else {
-            rows
-        })
+        pooled.to_vec2::<f32>().map_err(run)
     }
 }
 
@@ -325,9 +391,22 @@ impl Embedder for BertEmbedder {
         let mut start = 0;
         while start < order.len() {
             let mut end = start + 1;
-            while end < order.len()
-                && ids[order[end]].len() * (end + 1 - start) <= self.max_batch_tokens
-            {
+            // Sorted ascending, so the newest input is the longest: the padded size of the
+            // batch is its length times the count. The packed engine pads nothing, so its
+            // budget counts real tokens.
+            let pads_nothing = matches!(self.runner, Runner::Packed(_));
+            let mut real = ids[order[start]].len();
+            while end < order.len() {
+                let next = ids[order[end]].len();
+                let cost = if pads_nothing {
+                    real + next
+                } else {
+                    next * (end + 1 - start)
+                };
+                if cost > self.max_batch_tokens {
+                    break;
+                }
+                real += next;
                 end += 1;
             }
             let batch: Vec<&[u32]> = order[start..end].iter().map(|&i| ids[i]).collect();
@@ -338,7 +417,11 @@ impl Embedder for BertEmbedder {
             }
             stats.batches += 1;
             stats.real_tokens += batch.iter().map(|x| x.len()).sum::<usize>();
-            stats.padded_tokens += longest * batch.len();
+            stats.padded_tokens += if pads_nothing {
+                batch.iter().map(|x| x.len()).sum::<usize>()
+            } else {
+                longest * batch.len()
+            };
             start = end;
         }
         stats.inputs = texts.len();

@@ -5,6 +5,8 @@
 //! [`HashEmbedder`] and run for real with [`BertEmbedder`], a CPU forward pass over a
 //! BERT-family checkpoint (MiniLM, BGE-small, E5-small and GTE-small share the architecture).
 mod bert;
+pub mod kernels;
+pub mod packed;
 
 pub use bert::BertEmbedder;
 
@@ -38,6 +40,19 @@ pub enum Precision {
     Int8,
 }
 
+/// Which forward pass runs the model.
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, Hash,
+)]
+#[serde(rename_all = "kebab-case")]
+pub enum Engine {
+    /// kerf's padding-free packed forward pass (the default).
+    #[default]
+    Packed,
+    /// candle-transformers' stock BERT, padded batches: the correctness reference.
+    Candle,
+}
+
 /// Options for building an embedder.
 #[derive(Debug, Clone, PartialEq)]
 pub struct EmbedOptions {
@@ -54,6 +69,8 @@ pub struct EmbedOptions {
     pub threads: usize,
     /// Arithmetic precision.
     pub precision: Precision,
+    /// Forward pass.
+    pub engine: Engine,
 }
 
 impl Default for EmbedOptions {
@@ -65,6 +82,7 @@ impl Default for EmbedOptions {
             max_batch_tokens: 8192,
             threads: 0,
             precision: Precision::F32,
+            engine: Engine::Packed,
         }
     }
 }

@@ -1,0 +1,403 @@
+//! The packed encoder: a BERT forward pass over sequences laid end to end, with no padding.
+//!
+//! The stock candle model pads every batch to its longest input and runs attention over the
+//! padded square. Here a batch is one `[tokens, hidden]` matrix holding every sequence's rows
+//! back to back: the projections and the feed-forward are single large matrix products over all
+//! real tokens, and attention runs per sequence and head on exactly that sequence's rows, read in
+//! place from the fused query/key/value matrix (no transposes, no masks, no copies). The
+//! row-wise steps are fused (bias+GELU, bias+residual+LayerNorm). Weights are copied once into
+//! the layouts these products want.
+use rayon::prelude::*;
+
+use super::kernels::{self, View};
+use super::{Precision, TokenPooling};
+
+/// Sizes of a BERT encoder, from config.json.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Dims {
+    /// Width of the hidden states.
+    pub hidden: usize,
+    /// Attention heads.
+    pub heads: usize,
+    /// Width of the feed-forward layer.
+    pub intermediate: usize,
+    /// Encoder layers.
+    pub layers: usize,
+    /// Position embeddings (the longest input).
+    pub positions: usize,
+    /// Vocabulary.
+    pub vocab: usize,
+    /// LayerNorm epsilon.
+    pub eps: f32,
+}
+
+/// A dense layer `y = x W^T + b` with `W` stored `[out, in]` as PyTorch saves it.
+pub struct Linear {
+    /// Weights, `[out, in]` row-major.
+    pub weight: Vec<f32>,
+    /// Bias, `[out]`.
+    pub bias: Vec<f32>,
+    /// Input width.
+    pub inputs: usize,
+    /// Output width.
+    pub outputs: usize,
+}
+
+impl Linear {
+    fn rhs(&self) -> View<'_> {
+        View::transposed(&self.weight, self.outputs, self.inputs)
+    }
+}
+
+/// LayerNorm parameters.
+pub struct Norm {
+    /// Scale.
+    pub weight: Vec<f32>,
+    /// Shift.
+    pub bias: Vec<f32>,
+}
+
+/// One encoder layer.
+pub struct Layer {
+    /// Query, key and value projections fused into one `[3 * hidden, hidden]` layer.
+    pub qkv: Linear,
+    /// Attention output projection.
+    pub attn_out: Linear,
+    /// LayerNorm after attention.
+    pub attn_norm: Norm,
+    /// Feed-forward up projection.
+    pub up: Linear,
+    /// Feed-forward down projection.
+    pub down: Linear,
+    /// LayerNorm after the feed-forward.
+    pub out_norm: Norm,
+}
+
+/// Embedding tables.
+pub struct Embeddings {
+    /// `[vocab, hidden]`.
+    pub word: Vec<f32>,
+    /// `[positions, hidden]`.
+    pub position: Vec<f32>,
+    /// Token type 0's row, `[hidden]` (kerf embeds single segments).
+    pub token_type0: Vec<f32>,
+    /// LayerNorm after the sum.
+    pub norm: Norm,
+}
+
+/// A loaded encoder ready for packed forward passes.
+pub struct PackedModel {
+    /// Sizes.
+    pub dims: Dims,
+    /// Embedding tables.
+    pub embeddings: Embeddings,
+    /// Encoder layers.
+    pub layers: Vec<Layer>,
+}
+
+impl PackedModel {
+    /// Switch the arithmetic. `Bf16` rounds every matrix weight to the nearest bfloat16, so
+    /// products see bf16 weights with f32 accumulation (what bf16 dot-product instructions
+    /// compute); `F32` leaves the weights as loaded.
+    pub fn set_precision(&mut self, precision: Precision) {
+        if precision == Precision::Bf16 {
+            for l in &mut self.layers {
+                for lin in [&mut l.qkv, &mut l.attn_out, &mut l.up, &mut l.down] {
+                    lin.weight
+                        .iter_mut()
+                        .for_each(|w| *w = half::bf16::from_f32(*w).to_f32());
+                }
+            }
+        }
+    }
+}
+
+/// Rows per parallel task in the row-wise steps.
+const ROWS_PER_TASK: usize = 32;
+
+impl PackedModel {
+    /// Hidden states of the last layer for each sequence, laid end to end: row `offsets[s] + i`
+    /// is token `i` of sequence `s`. Every id must be below the vocabulary size and no sequence
+    /// longer than the position table (the caller tokenizes with truncation).
+    pub fn forward(&self, seqs: &[&[u32]], threads: usize) -> Vec<f32> {
+        let d = self.dims;
+        let h = d.hidden;
+        let total: usize = seqs.iter().map(|s| s.len()).sum();
+        let offsets: Vec<usize> = seqs
+            .iter()
+            .scan(0, |acc, s| {
+                let o = *acc;
+                *acc += s.len();
+                Some(o)
+            })
+            .collect();
+
+        let mut hidden = vec![0f32; total * h];
+        self.embed_tokens(seqs, &offsets, &mut hidden);
+
+        let mut qkv = vec![0f32; total * 3 * h];
+        let mut ctx = vec![0f32; total * h];
+        let mut ctx_heads = vec![0f32; total * h];
+        let mut update = vec![0f32; total * h];
+        let mut inter = vec![0f32; total * d.intermediate];
+        for layer in &self.layers {
+            // Fused query/key/value projection over every token of the batch.
+            dense(&mut qkv, &hidden, &layer.qkv, threads);
+            par_rows(&mut qkv, 3 * h, |rows| kernels::add_bias(rows, &layer.qkv.bias));
+            self.attention(&qkv, seqs, &offsets, &mut ctx_heads);
+            interleave_heads(&ctx_heads, &mut ctx, total, d.heads, h / d.heads);
+            dense(&mut update, &ctx, &layer.attn_out, threads);
+            residual_norm(&mut hidden, &update, &layer.attn_out.bias, &layer.attn_norm, d.eps);
+            dense(&mut inter, &hidden, &layer.up, threads);
+            par_rows(&mut inter, d.intermediate, |rows| {
+                kernels::add_bias_gelu(rows, &layer.up.bias)
+            });
+            dense(&mut update, &inter, &layer.down, threads);
+            residual_norm(&mut hidden, &update, &layer.down.bias, &layer.out_norm, d.eps);
+        }
+        hidden
+    }
+
+    fn embed_tokens(&self, seqs: &[&[u32]], offsets: &[usize], hidden: &mut [f32]) {
+        let h = self.dims.hidden;
+        let e = &self.embeddings;
+        for (s, &off) in seqs.iter().zip(offsets) {
+            for (pos, &id) in s.iter().enumerate() {
+                let row = &mut hidden[(off + pos) * h..(off + pos + 1) * h];
+                let word = &e.word[id as usize * h..(id as usize + 1) * h];
+                let place = &e.position[pos * h..(pos + 1) * h];
+                for (((r, w), p), t) in row.iter_mut().zip(word).zip(place).zip(&e.token_type0) {
+                    *r = w + p + t;
+                }
+            }
+        }
+        let eps = self.dims.eps;
+        par_rows(hidden, h, |rows| {
+            kernels::layer_norm(rows, &e.norm.weight, &e.norm.bias, eps)
+        });
+    }
+
+    /// Scaled dot-product attention for every (sequence, head) pair, in parallel. Output is
+    /// head-major: head `k`'s context rows for all tokens form one contiguous block, so each
+    /// task owns a disjoint slice.
+    fn attention(&self, qkv: &[f32], seqs: &[&[u32]], offsets: &[usize], out: &mut [f32]) {
+        let d = self.dims;
+        let h = d.hidden;
+        let hd = h / d.heads;
+        let total: usize = seqs.iter().map(|s| s.len()).sum();
+        let scale = 1.0 / (hd as f32).sqrt();
+        let mut tasks: Vec<(usize, usize, &mut [f32])> = Vec::with_capacity(d.heads * seqs.len());
+        for (head, block) in out.chunks_mut(total * hd).enumerate() {
+            let mut rest = block;
+            for (s, seq) in seqs.iter().enumerate() {
+                let (mine, tail) = rest.split_at_mut(seq.len() * hd);
+                tasks.push((head, s, mine));
+                rest = tail;
+            }
+        }
+        // Longest sequences first so the pool's last tasks are the short ones.
+        tasks.sort_by_key(|t| std::cmp::Reverse(seqs[t.1].len()));
+        tasks.into_par_iter().for_each_init(Vec::new, |scores, (head, s, dst)| {
+            let len = seqs[s].len();
+            let base = offsets[s] * 3 * h;
+            let q = View {
+                data: &qkv[base + head * hd..],
+                rows: len,
+                cols: hd,
+                row_stride: 3 * h,
+                col_stride: 1,
+            };
+            // K^T read in place: element (c, j) is key j's component c.
+            let kt = View {
+                data: &qkv[base + h + head * hd..],
+                rows: hd,
+                cols: len,
+                row_stride: 1,
+                col_stride: 3 * h,
+            };
+            let v = View {
+                data: &qkv[base + 2 * h + head * hd..],
+                rows: len,
+                cols: hd,
+                row_stride: 3 * h,
+                col_stride: 1,
+            };
+            scores.resize(len * len, 0.0);
+            kernels::matmul(scores, len, q, kt, scale, false, 1);
+            kernels::softmax_rows(scores, len);
+            kernels::matmul(dst, hd, View::rows(scores, len, len), v, 1.0, false, 1);
+        });
+    }
+}
+
+/// Read the weights of a BERT checkpoint from safetensors bytes (f32, f16 or bf16 tensors, names
+/// with or without a `bert.` prefix) into the packed layouts. Shapes must already have been
+/// checked against `dims`; `Err` carries the name of a tensor that could not be read.
+pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel, String> {
+    let get = |name: &str| -> Result<Vec<f32>, String> {
+        let t = st
+            .tensor(name)
+            .or_else(|_| st.tensor(&format!("bert.{name}")))
+            .map_err(|_| format!("tensor `{name}` is missing"))?;
+        let b = t.data();
+        use safetensors::Dtype;
+        Ok(match t.dtype() {
+            Dtype::F32 => b
+                .chunks_exact(4)
+                .map(|c| f32::from_le_bytes([c[0], c[1], c[2], c[3]]))
+                .collect(),
+            Dtype::F16 => b
+                .chunks_exact(2)
+                .map(|c| half::f16::from_le_bytes([c[0], c[1]]).to_f32())
+                .collect(),
+            Dtype::BF16 => b
+                .chunks_exact(2)
+                .map(|c| half::bf16::from_le_bytes([c[0], c[1]]).to_f32())
+                .collect(),
+            other => return Err(format!("tensor `{name}` has dtype {other:?}; expected F32, F16 or BF16")),
+        })
+    };
+    let linear = |pre: &str, inputs: usize, outputs: usize| -> Result<Linear, String> {
+        Ok(Linear {
+            weight: get(&format!("{pre}.weight"))?,
+            bias: get(&format!("{pre}.bias"))?,
+            inputs,
+            outputs,
+        })
+    };
+    let norm = |pre: &str| -> Result<Norm, String> {
+        Ok(Norm {
+            weight: get(&format!("{pre}.weight"))?,
+            bias: get(&format!("{pre}.bias"))?,
+        })
+    };
+    let (h, i) = (dims.hidden, dims.intermediate);
+    let types = get("embeddings.token_type_embeddings.weight")?;
+    let embeddings = Embeddings {
+        word: get("embeddings.word_embeddings.weight")?,
+        position: get("embeddings.position_embeddings.weight")?,
+        token_type0: types[..h].to_vec(),
+        norm: norm("embeddings.LayerNorm")?,
+    };
+    let mut layers = Vec::with_capacity(dims.layers);
+    for l in 0..dims.layers {
+        let pre = format!("encoder.layer.{l}");
+        let (q, k, v) = (
+            linear(&format!("{pre}.attention.self.query"), h, h)?,
+            linear(&format!("{pre}.attention.self.key"), h, h)?,
+            linear(&format!("{pre}.attention.self.value"), h, h)?,
+        );
+        let qkv = Linear {
+            weight: [q.weight, k.weight, v.weight].concat(),
+            bias: [q.bias, k.bias, v.bias].concat(),
+            inputs: h,
+            outputs: 3 * h,
+        };
+        layers.push(Layer {
+            qkv,
+            attn_out: linear(&format!("{pre}.attention.output.dense"), h, h)?,
+            attn_norm: norm(&format!("{pre}.attention.output.LayerNorm"))?,
+            up: linear(&format!("{pre}.intermediate.dense"), h, i)?,
+            down: linear(&format!("{pre}.output.dense"), i, h)?,
+            out_norm: norm(&format!("{pre}.output.LayerNorm"))?,
+        });
+    }
+    Ok(PackedModel {
+        dims,
+        embeddings,
+        layers,
+    })
+}
+
+/// `out = x W^T` over all rows of `x` (bias added by the caller's fused step).
+fn dense(out: &mut [f32], x: &[f32], layer: &Linear, threads: usize) {
+    let rows = x.len() / layer.inputs;
+    kernels::matmul(
+        out,
+        layer.outputs,
+        View::rows(x, rows, layer.inputs),
+        layer.rhs(),
+        1.0,
+        false,
+        threads,
+    );
+}
+
+fn par_rows(x: &mut [f32], width: usize, f: impl Fn(&mut [f32]) + Sync) {
+    x.par_chunks_mut(width * ROWS_PER_TASK).for_each(|rows| f(rows));
+}
+
+fn residual_norm(hidden: &mut [f32], update: &[f32], bias: &[f32], norm: &Norm, eps: f32) {
+    let h = bias.len();
+    hidden
+        .par_chunks_mut(h * ROWS_PER_TASK)
+        .zip(update.par_chunks(h * ROWS_PER_TASK))
+        .for_each(|(hs, us)| {
+            kernels::residual_layer_norm(hs, us, bias, &norm.weight, &norm.bias, eps)
+        });
+}
+
+/// Head-major context (`[heads][tokens][head_dim]`) to token-major (`[tokens][heads * head_dim]`).
+fn interleave_heads(src: &[f32], dst: &mut [f32], total: usize, heads: usize, hd: usize) {
+    let h = heads * hd;
+    dst.par_chunks_mut(h * ROWS_PER_TASK)
+        .enumerate()
+        .for_each(|(c, rows)| {
+            for (i, row) in rows.chunks_exact_mut(h).enumerate() {
+                let t = c * ROWS_PER_TASK + i;
+                for k in 0..heads {
+                    let from = &src[k * total * hd + t * hd..k * total * hd + (t + 1) * hd];
+                    row[k * hd..(k + 1) * hd].copy_from_slice(from);
+                }
+            }
+        });
+}
+
+/// Pool one sequence's token rows (`[len, hidden]`) into one vector.
+pub fn pool_tokens(rows: &[f32], hidden: usize, pooling: TokenPooling) -> Vec<f32> {
+    let len = rows.len() / hidden;
+    match pooling {
+        TokenPooling::Cls => rows[..hidden].to_vec(),
+        TokenPooling::Mean => {
+            let mut acc = vec![0f32; hidden];
+            for r in rows.chunks_exact(hidden) {
+                for (a, v) in acc.iter_mut().zip(r) {
+                    *a += v;
+                }
+            }
+            acc.iter_mut().for_each(|a| *a /= len as f32);
+            acc
+        }
+        TokenPooling::Max => {
+            let mut acc = vec![f32::NEG_INFINITY; hidden];
+            for r in rows.chunks_exact(hidden) {
+                for (a, v) in acc.iter_mut().zip(r) {
+                    *a = a.max(*v);
+                }
+            }
+            acc
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn head_interleaving_puts_each_heads_block_at_its_columns() {
+        // 3 tokens, 2 heads of width 2: head-major [h0: t0 t1 t2][h1: t0 t1 t2].
+        let src: Vec<f32> = (0..12).map(|v| v as f32).collect();
+        let mut dst = vec![0f32; 12];
+        interleave_heads(&src, &mut dst, 3, 2, 2);
+        assert_eq!(dst, vec![0., 1., 6., 7., 2., 3., 8., 9., 4., 5., 10., 11.]);
+    }
+
+    #[test]
+    fn token_pooling_by_hand() {
+        let rows = [1.0f32, -2.0, 3.0, 4.0, 5.0, 0.0];
+        assert_eq!(pool_tokens(&rows, 2, TokenPooling::Cls), vec![1.0, -2.0]);
+        assert_eq!(pool_tokens(&rows, 2, TokenPooling::Mean), vec![3.0, 2.0 / 3.0]);
+        assert_eq!(pool_tokens(&rows, 2, TokenPooling::Max), vec![5.0, 4.0]);
+    }
+}
