@@ -45,6 +45,10 @@ fn main() -> anyhow::Result<()> {
             max_input_tokens,
             engine,
             precision,
+            max_batch_tokens: std::env::var("KERF_BATCH_TOKENS")
+                .ok()
+                .and_then(|v| v.parse().ok())
+                .unwrap_or(8192),
             ..Default::default()
         },
     )?;

@@ -129,17 +129,23 @@ const LOG2E: f32 = std::f32::consts::LOG2_E;
 #[inline(always)]
 pub fn exp(x: f32) -> f32 {
     let x = x.clamp(-87.0, 88.0);
-    // Round to nearest by adding and removing 1.5 * 2^23: no branch, no libm call.
+    // Round to nearest by adding 1.5 * 2^23: the sum's low mantissa bits then hold n as a
+    // two's-complement integer, read back with integer operations only. (A float-to-int `as`
+    // cast would saturate, which the compiler cannot vectorise.)
     const SHIFT: f32 = 12_582_912.0;
-    let n = (x * LOG2E + SHIFT) - SHIFT;
-    let r = x - n * 0.693_359_4 - n * -2.121_944_4e-4;
-    let p = ((((1.987_569_1e-4 * r + 1.398_199_9e-3) * r + 8.333_452e-3) * r + 4.166_579_6e-2)
-        * r
-        + 0.166_666_65)
-        * r
-        + 0.5;
-    let y = p * r * r + r + 1.0;
-    y * f32::from_bits(((n as i32 + 127) << 23) as u32)
+    let t = x.mul_add(LOG2E, SHIFT);
+    let n_int = (t.to_bits() as i32).wrapping_sub(SHIFT.to_bits() as i32);
+    let n = t - SHIFT;
+    let r = n.mul_add(-0.693_359_4, x);
+    let r = n.mul_add(2.121_944_4e-4, r);
+    let p = 1.987_569_1e-4f32
+        .mul_add(r, 1.398_199_9e-3)
+        .mul_add(r, 8.333_452e-3)
+        .mul_add(r, 4.166_579_6e-2)
+        .mul_add(r, 0.166_666_65)
+        .mul_add(r, 0.5);
+    let y = (p * r).mul_add(r, r) + 1.0;
+    y * f32::from_bits((n_int.wrapping_add(127) << 23) as u32)
 }
 
 /// The error function, with absolute error below 4e-7 (the fit plus f32 rounding in the
@@ -314,7 +320,15 @@ mod tests {
         let b = data(k * n, 2);
         let want = naive(&a, &b, m, k, n);
         let mut got = vec![0f32; m * n];
-        matmul(&mut got, n, View::rows(&a, m, k), View::rows(&b, k, n), 1.0, false, 1);
+        matmul(
+            &mut got,
+            n,
+            View::rows(&a, m, k),
+            View::rows(&b, k, n),
+            1.0,
+            false,
+            1,
+        );
         for (g, w) in got.iter().zip(&want) {
             assert!((g - w).abs() < 1e-5, "{g} vs {w}");
         }
@@ -326,7 +340,15 @@ mod tests {
             }
         }
         let mut got2 = vec![1f32; m * n];
-        matmul(&mut got2, n, View::rows(&a, m, k), View::transposed(&bt, n, k), 2.0, true, 2);
+        matmul(
+            &mut got2,
+            n,
+            View::rows(&a, m, k),
+            View::transposed(&bt, n, k),
+            2.0,
+            true,
+            2,
+        );
         for (g, w) in got2.iter().zip(&want) {
             assert!((g - (1.0 + 2.0 * w)).abs() < 1e-5);
         }
@@ -337,7 +359,15 @@ mod tests {
     fn matmul_refuses_a_view_larger_than_its_slice() {
         let a = vec![0f32; 10];
         let mut d = vec![0f32; 100];
-        matmul(&mut d, 10, View::rows(&a, 4, 4), View::rows(&a, 4, 2), 1.0, false, 1);
+        matmul(
+            &mut d,
+            10,
+            View::rows(&a, 4, 4),
+            View::rows(&a, 4, 2),
+            1.0,
+            false,
+            1,
+        );
     }
 
     #[test]

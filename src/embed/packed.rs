@@ -143,17 +143,31 @@ impl PackedModel {
         for layer in &self.layers {
             // Fused query/key/value projection over every token of the batch.
             dense(&mut qkv, &hidden, &layer.qkv, threads);
-            par_rows(&mut qkv, 3 * h, |rows| kernels::add_bias(rows, &layer.qkv.bias));
+            par_rows(&mut qkv, 3 * h, |rows| {
+                kernels::add_bias(rows, &layer.qkv.bias)
+            });
             self.attention(&qkv, seqs, &offsets, &mut ctx_heads);
             interleave_heads(&ctx_heads, &mut ctx, total, d.heads, h / d.heads);
             dense(&mut update, &ctx, &layer.attn_out, threads);
-            residual_norm(&mut hidden, &update, &layer.attn_out.bias, &layer.attn_norm, d.eps);
+            residual_norm(
+                &mut hidden,
+                &update,
+                &layer.attn_out.bias,
+                &layer.attn_norm,
+                d.eps,
+            );
             dense(&mut inter, &hidden, &layer.up, threads);
             par_rows(&mut inter, d.intermediate, |rows| {
                 kernels::add_bias_gelu(rows, &layer.up.bias)
             });
             dense(&mut update, &inter, &layer.down, threads);
-            residual_norm(&mut hidden, &update, &layer.down.bias, &layer.out_norm, d.eps);
+            residual_norm(
+                &mut hidden,
+                &update,
+                &layer.down.bias,
+                &layer.out_norm,
+                d.eps,
+            );
         }
         hidden
     }
@@ -197,36 +211,38 @@ impl PackedModel {
         }
         // Longest sequences first so the pool's last tasks are the short ones.
         tasks.sort_by_key(|t| std::cmp::Reverse(seqs[t.1].len()));
-        tasks.into_par_iter().for_each_init(Vec::new, |scores, (head, s, dst)| {
-            let len = seqs[s].len();
-            let base = offsets[s] * 3 * h;
-            let q = View {
-                data: &qkv[base + head * hd..],
-                rows: len,
-                cols: hd,
-                row_stride: 3 * h,
-                col_stride: 1,
-            };
-            // K^T read in place: element (c, j) is key j's component c.
-            let kt = View {
-                data: &qkv[base + h + head * hd..],
-                rows: hd,
-                cols: len,
-                row_stride: 1,
-                col_stride: 3 * h,
-            };
-            let v = View {
-                data: &qkv[base + 2 * h + head * hd..],
-                rows: len,
-                cols: hd,
-                row_stride: 3 * h,
-                col_stride: 1,
-            };
-            scores.resize(len * len, 0.0);
-            kernels::matmul(scores, len, q, kt, scale, false, 1);
-            kernels::softmax_rows(scores, len);
-            kernels::matmul(dst, hd, View::rows(scores, len, len), v, 1.0, false, 1);
-        });
+        tasks
+            .into_par_iter()
+            .for_each_init(Vec::new, |scores, (head, s, dst)| {
+                let len = seqs[s].len();
+                let base = offsets[s] * 3 * h;
+                let q = View {
+                    data: &qkv[base + head * hd..],
+                    rows: len,
+                    cols: hd,
+                    row_stride: 3 * h,
+                    col_stride: 1,
+                };
+                // K^T read in place: element (c, j) is key j's component c.
+                let kt = View {
+                    data: &qkv[base + h + head * hd..],
+                    rows: hd,
+                    cols: len,
+                    row_stride: 1,
+                    col_stride: 3 * h,
+                };
+                let v = View {
+                    data: &qkv[base + 2 * h + head * hd..],
+                    rows: len,
+                    cols: hd,
+                    row_stride: 3 * h,
+                    col_stride: 1,
+                };
+                scores.resize(len * len, 0.0);
+                kernels::matmul(scores, len, q, kt, scale, false, 1);
+                kernels::softmax_rows(scores, len);
+                kernels::matmul(dst, hd, View::rows(scores, len, len), v, 1.0, false, 1);
+            });
     }
 }
 
@@ -254,7 +270,11 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
                 .chunks_exact(2)
                 .map(|c| half::bf16::from_le_bytes([c[0], c[1]]).to_f32())
                 .collect(),
-            other => return Err(format!("tensor `{name}` has dtype {other:?}; expected F32, F16 or BF16")),
+            other => {
+                return Err(format!(
+                    "tensor `{name}` has dtype {other:?}; expected F32, F16 or BF16"
+                ))
+            }
         })
     };
     let linear = |pre: &str, inputs: usize, outputs: usize| -> Result<Linear, String> {
@@ -324,7 +344,8 @@ fn dense(out: &mut [f32], x: &[f32], layer: &Linear, threads: usize) {
 }
 
 fn par_rows(x: &mut [f32], width: usize, f: impl Fn(&mut [f32]) + Sync) {
-    x.par_chunks_mut(width * ROWS_PER_TASK).for_each(|rows| f(rows));
+    x.par_chunks_mut(width * ROWS_PER_TASK)
+        .for_each(|rows| f(rows));
 }
 
 fn residual_norm(hidden: &mut [f32], update: &[f32], bias: &[f32], norm: &Norm, eps: f32) {
@@ -397,7 +418,10 @@ mod tests {
     fn token_pooling_by_hand() {
         let rows = [1.0f32, -2.0, 3.0, 4.0, 5.0, 0.0];
         assert_eq!(pool_tokens(&rows, 2, TokenPooling::Cls), vec![1.0, -2.0]);
-        assert_eq!(pool_tokens(&rows, 2, TokenPooling::Mean), vec![3.0, 2.0 / 3.0]);
+        assert_eq!(
+            pool_tokens(&rows, 2, TokenPooling::Mean),
+            vec![3.0, 2.0 / 3.0]
+        );
         assert_eq!(pool_tokens(&rows, 2, TokenPooling::Max), vec![5.0, 4.0]);
     }
 }
