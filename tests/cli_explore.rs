@@ -7,7 +7,12 @@ fn no_readable_documents_is_an_error() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("picture.png"), b"\x89PNG\0\0").unwrap();
     std::fs::write(dir.path().join("bin.txt"), b"\0\x01\x02").unwrap();
-    let e = common::fails(&common::kerf(&["explore", "--hash-embedder", "--no-cache", dir.path().to_str().unwrap()]));
+    let e = common::fails(&common::kerf(&[
+        "explore",
+        "--hash-embedder",
+        "--no-cache",
+        dir.path().to_str().unwrap(),
+    ]));
     assert!(e.contains("no readable documents"), "{e}");
     assert!(e.contains("bin.txt") && e.contains("binary"), "{e}");
 }

@@ -1,6 +1,5 @@
 //! Rendering the explorer into ratatui's TestBackend on demo-texts, with the model-free hash
 //! embedder standing in for the encoder (the tokenizer is the real model's).
-use std::path::Path;
 
 use kerf::cache::text_key;
 use kerf::compare::engine::Corpus;

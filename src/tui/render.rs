@@ -209,7 +209,12 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
                 .add_modifier(Modifier::BOLD),
         ),
         Span::raw(format!(
-            " sentences over the {}-token budget",
+            " {} over the {}-token budget",
+            if t.oversize_sentences == 1 {
+                "sentence"
+            } else {
+                "sentences"
+            },
             app.current.plan.budget()
         )),
     ]);
@@ -745,7 +750,6 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
             (a.min(x), b.max(x))
         });
     const LEVELS: [&str; 8] = ["▁", "▂", "▃", "▄", "▅", "▆", "▇", "█"];
-    let cell_of = |k: usize| k * strip_w.min(n * 3) / n;
     let shown = strip_rows.saturating_sub(1);
     let first_ref = app.reference.saturating_sub(shown.saturating_sub(1));
     for (ri, c) in cos.iter().enumerate().skip(first_ref).take(shown) {
@@ -768,10 +772,11 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
             .enumerate()
             .fold(0, |b, (i, &s)| if s > c[b] { i } else { b });
         let width = strip_w.min(n * 3);
+        let mut marked = false;
         for cell in 0..width {
             // Chunks this cell covers: the highest cosine among them.
             let from = cell * n / width;
-            let to = ((cell + 1) * n / width).max(from + 1).min(n);
+            let to = ((cell + 1) * n).div_ceil(width).clamp(from + 1, n);
             let v = c[from..to]
                 .iter()
                 .copied()
@@ -782,7 +787,8 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
                 7
             };
             let is_best = (from..to).contains(&best);
-            let glyph = if is_best && cell == cell_of(best) {
+            let glyph = if is_best && !marked {
+                marked = true;
                 "◆"
             } else {
                 LEVELS[level.min(7)]
