@@ -9,7 +9,6 @@ use std::collections::{HashMap, HashSet};
 use std::ops::Range;
 use std::path::{Path, PathBuf};
 
-use crate::cache::text_key;
 use crate::compare::engine::{self, Corpus, DocScore};
 use crate::compare::metrics::Summary;
 use crate::compare::refs::Reference;
@@ -25,7 +24,7 @@ use crate::tokens::TokenCounter;
 
 use super::action::{Action, Pane};
 use super::render;
-use super::worker::{Job, Key, Report, Request};
+use super::worker::{Job, Report, Request};
 
 /// Window sizes the w/W keys step through (those above the model's limit are skipped).
 pub const WINDOW_STEPS: [usize; 8] = [64, 128, 192, 256, 320, 384, 448, 512];
@@ -166,6 +165,26 @@ impl Scored {
     }
 }
 
+/// In-memory identity of a vector: a chunk by its document and byte range under a prefix, or a
+/// reference by its index. Hashing every chunk's text on every key press would cost more than
+/// re-cutting; the SQLite cache behind the worker still keys by the text itself.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Ident {
+    /// A chunk of a document.
+    Chunk {
+        /// Hash of the prefix put before the chunk.
+        prefix: u64,
+        /// Document index.
+        doc: u32,
+        /// First byte.
+        start: u32,
+        /// Byte past the end.
+        end: u32,
+    },
+    /// A reference by its index.
+    Ref(u32),
+}
+
 /// A plan cut over the corpus.
 #[derive(Clone)]
 pub struct PlanState {
@@ -173,8 +192,8 @@ pub struct PlanState {
     pub plan: ResolvedPlan,
     /// Chunks of each document.
     pub chunks: Vec<Vec<Chunk>>,
-    /// Cache key of each chunk (prefix and text).
-    pub keys: Vec<Vec<Key>>,
+    /// Identity of each chunk's vector.
+    pub keys: Vec<Vec<Ident>>,
     /// Scores, once every vector is in.
     pub scored: Option<Scored>,
 }
@@ -274,9 +293,9 @@ pub struct App {
     pub status: Option<Status>,
     /// Set when the user quits.
     pub quit: bool,
-    vectors: HashMap<(TokenPooling, Key), Vec<f32>>,
-    pending: HashMap<u64, Vec<(TokenPooling, Key)>>,
-    pending_keys: HashSet<(TokenPooling, Key)>,
+    vectors: HashMap<(TokenPooling, Ident), Vec<f32>>,
+    pending: HashMap<u64, Vec<(TokenPooling, Ident)>>,
+    pending_keys: HashSet<(TokenPooling, Ident)>,
     progress: HashMap<u64, (usize, usize)>,
     outbox: Vec<Request>,
     next_job: u64,
@@ -380,6 +399,11 @@ impl App {
         app.request_missing();
         app.relayout(None);
         Ok(app)
+    }
+
+    /// The model's tokenizer.
+    pub fn counter(&self) -> &TokenCounter {
+        &self.counter
     }
 
     /// Requests for the worker queued since the last call.
@@ -744,7 +768,7 @@ impl App {
 
     /// Queue embedding jobs for every vector the current and comparison plans lack.
     fn request_missing(&mut self) {
-        let mut jobs: Vec<Job> = Vec::new();
+        let mut jobs: Vec<(Job, Vec<(TokenPooling, Ident)>)> = Vec::new();
         let states: Vec<&PlanState> = [
             Some(&self.current),
             Some(&self.baseline),
@@ -753,80 +777,73 @@ impl App {
         .into_iter()
         .flatten()
         .collect();
-        let mut asked: HashSet<(TokenPooling, Key)> = HashSet::new();
+        let mut asked: HashSet<(TokenPooling, Ident)> = HashSet::new();
         let mut poolings: Vec<TokenPooling> = Vec::new();
+        let missing = |id: &(TokenPooling, Ident), asked: &mut HashSet<(TokenPooling, Ident)>| {
+            !self.vectors.contains_key(id) && !self.pending_keys.contains(id) && asked.insert(*id)
+        };
         for st in &states {
             let pooling = st.plan.profile.pool.tokens;
             if !poolings.contains(&pooling) {
                 poolings.push(pooling);
             }
-            let prefix = st.plan.profile.cut.prefix.clone();
             let mut texts = Vec::new();
+            let mut ids = Vec::new();
             for (d, keys) in st.keys.iter().enumerate() {
                 for (c, k) in keys.iter().enumerate() {
                     let id = (pooling, *k);
-                    if self.vectors.contains_key(&id)
-                        || self.pending_keys.contains(&id)
-                        || !asked.insert(id)
-                    {
-                        continue;
+                    if missing(&id, &mut asked) {
+                        texts.push(
+                            self.corpus.docs[d].text[st.chunks[d][c].byte_range.clone()]
+                                .to_string(),
+                        );
+                        ids.push(id);
                     }
-                    texts.push(
-                        self.corpus.docs[d].text[st.chunks[d][c].byte_range.clone()].to_string(),
-                    );
                 }
             }
             if !texts.is_empty() {
-                jobs.push(Job {
+                let job = Job {
                     id: 0,
                     generation: Some(self.generation),
                     pooling,
+                    prefix: st.plan.profile.cut.prefix.clone(),
+                    texts,
+                };
+                jobs.push((job, ids));
+            }
+        }
+        for pooling in poolings {
+            let mut by_prefix: Vec<(String, Vec<String>, Vec<(TokenPooling, Ident)>)> = Vec::new();
+            for (i, r) in self.refs.iter().enumerate() {
+                let id = (pooling, Ident::Ref(i as u32));
+                if !missing(&id, &mut asked) {
+                    continue;
+                }
+                match by_prefix.iter_mut().find(|(p, _, _)| *p == r.prefix) {
+                    Some((_, t, ids)) => {
+                        t.push(r.text.clone());
+                        ids.push(id);
+                    }
+                    None => by_prefix.push((r.prefix.clone(), vec![r.text.clone()], vec![id])),
+                }
+            }
+            for (prefix, texts, ids) in by_prefix {
+                // References first: the Fit pane needs them before any chunk helps.
+                let job = Job {
+                    id: 0,
+                    generation: None,
+                    pooling,
                     prefix,
                     texts,
-                });
+                };
+                jobs.insert(0, (job, ids));
             }
         }
-        if !self.refs.is_empty() {
-            for pooling in poolings {
-                let mut by_prefix: Vec<(String, Vec<String>)> = Vec::new();
-                for r in &self.refs {
-                    let id = (pooling, text_key(&r.prefix, &r.text));
-                    if self.vectors.contains_key(&id)
-                        || self.pending_keys.contains(&id)
-                        || !asked.insert(id)
-                    {
-                        continue;
-                    }
-                    match by_prefix.iter_mut().find(|(p, _)| *p == r.prefix) {
-                        Some((_, v)) => v.push(r.text.clone()),
-                        None => by_prefix.push((r.prefix.clone(), vec![r.text.clone()])),
-                    }
-                }
-                for (prefix, texts) in by_prefix {
-                    // References first: the Fit pane needs them before any chunk helps.
-                    jobs.insert(
-                        0,
-                        Job {
-                            id: 0,
-                            generation: None,
-                            pooling,
-                            prefix,
-                            texts,
-                        },
-                    );
-                }
-            }
-        }
-        for mut job in jobs {
+        for (mut job, ids) in jobs {
             job.id = self.next_job;
             self.next_job += 1;
-            let keys: Vec<(TokenPooling, Key)> = job
-                .texts
-                .iter()
-                .map(|t| (job.pooling, text_key(&job.prefix, t)))
-                .collect();
-            self.pending_keys.extend(keys.iter().copied());
-            self.pending.insert(job.id, keys);
+            self.pending_keys.extend(ids.iter().copied());
+            self.pending.insert(job.id, ids);
             self.outbox.push(Request::Embed(job));
         }
     }
@@ -841,14 +858,17 @@ impl App {
             Report::Done {
                 id,
                 pooling,
-                keys,
+                keys: _,
                 vectors,
                 embedded,
             } => {
+                // The vectors come back in the order the job listed its texts.
+                let ids = self.pending.get(&id).cloned().unwrap_or_default();
                 self.forget_job(id);
                 self.embedded_total += embedded;
-                for (k, v) in keys.into_iter().zip(vectors) {
-                    self.vectors.insert((pooling, k), v);
+                for ((p, k), v) in ids.into_iter().zip(vectors) {
+                    debug_assert_eq!(p, pooling);
+                    self.vectors.insert((p, k), v);
                 }
                 self.rescore();
                 if self.sort == SortOrder::Similarity {
@@ -1148,15 +1168,24 @@ fn best_index(v: &[f32]) -> Option<usize> {
 pub fn cut_state(corpus: &Corpus, counter: &TokenCounter, plan: ResolvedPlan) -> PlanState {
     use rayon::prelude::*;
     let chunks = engine::cut_corpus(corpus, &plan, counter);
-    let prefix = plan.profile.cut.prefix.clone();
-    let keys = corpus
-        .docs
+    let prefix = {
+        use std::hash::{Hash, Hasher};
+        let mut h = std::collections::hash_map::DefaultHasher::new();
+        plan.profile.cut.prefix.hash(&mut h);
+        h.finish()
+    };
+    let keys = chunks
         .par_iter()
-        .zip(&chunks)
-        .map(|(d, cs)| {
+        .enumerate()
+        .map(|(doc, cs)| {
             cs.iter()
-                .map(|c| text_key(&prefix, &d.text[c.byte_range.clone()]))
-                .collect::<Vec<Key>>()
+                .map(|c| Ident::Chunk {
+                    prefix,
+                    doc: doc as u32,
+                    start: c.byte_range.start as u32,
+                    end: c.byte_range.end as u32,
+                })
+                .collect::<Vec<Ident>>()
         })
         .collect();
     PlanState {
@@ -1172,17 +1201,16 @@ fn score_state(
     st: &PlanState,
     corpus: &Corpus,
     refs: &[Reference],
-    vectors: &HashMap<(TokenPooling, Key), Vec<f32>>,
+    vectors: &HashMap<(TokenPooling, Ident), Vec<f32>>,
 ) -> Option<Scored> {
     if refs.is_empty() {
         return None;
     }
     let pooling = st.plan.profile.pool.tokens;
-    let ref_vecs: Vec<&[f32]> = refs
-        .iter()
-        .map(|r| {
+    let ref_vecs: Vec<&[f32]> = (0..refs.len())
+        .map(|i| {
             vectors
-                .get(&(pooling, text_key(&r.prefix, &r.text)))
+                .get(&(pooling, Ident::Ref(i as u32)))
                 .map(Vec::as_slice)
         })
         .collect::<Option<_>>()?;
@@ -1364,6 +1392,7 @@ fn wrap_line(text: &str, r: Range<usize>, width: usize, out: &mut Vec<Range<usiz
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::cache::text_key;
     use crate::corpus::Document;
 
     fn demo_app(files: &[&str]) -> App {
