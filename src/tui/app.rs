@@ -426,7 +426,7 @@ impl App {
         !self.pending.is_empty()
     }
 
-    /// (done, total) inputs to embed across pending jobs (cache hits not counted).
+    /// (done, total) inputs across pending jobs.
     pub fn progress(&self) -> (usize, usize) {
         let mut done = 0;
         let mut total = 0;

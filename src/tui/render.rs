@@ -234,7 +234,7 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
                 .gauge_style(Style::new().fg(Color::Blue).bg(Color::Indexed(236)))
                 .ratio(ratio)
                 .label(format!(
-                    "embedding {done}/{total} new chunks (the UI stays live)"
+                    "embedding {done}/{total} chunks (the UI stays live)"
                 ))
                 .render(row, buf);
         } else {

@@ -34,7 +34,7 @@ pub struct Job {
 /// What the worker tells the UI.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Report {
-    /// Inputs of a job embedded so far (cache hits are not counted).
+    /// Inputs of a job done so far (cache hits included).
     Progress {
         /// Job id.
         id: u64,
@@ -154,14 +154,29 @@ fn run(
             }
             continue;
         }
-        let report = embed_job(&job, &mut factory, &mut embedders, cache.as_ref(), &reports)
-            .unwrap_or_else(|e| Report::Failed {
+        let report = match embed_job(
+            &job,
+            &mut factory,
+            &mut embedders,
+            cache.as_ref(),
+            &reports,
+            &mut |generation_now| {
+                while let Ok(r) = requests.try_recv() {
+                    absorb(r, &mut queue, &mut generation);
+                }
+                *generation_now = generation;
+            },
+        ) {
+            Ok(Some(r)) => r,
+            Ok(None) => Report::Skipped { id: job.id },
+            Err(e) => Report::Failed {
                 id: job.id,
                 message: match &cache_error {
                     Some(c) => format!("{e:#} (vector cache not used: {c})"),
                     None => format!("{e:#}"),
                 },
-            });
+            },
+        };
         if reports.send(report).is_err() {
             return;
         }
@@ -175,13 +190,20 @@ fn absorb(r: Request, queue: &mut std::collections::VecDeque<Job>, generation: &
     }
 }
 
+/// Texts embedded between two looks at the request channel: small enough that a newer plan
+/// stops a stale job within a second or two on CPU, large enough to batch well.
+const SLICE: usize = 16;
+
+/// Embed a job slice by slice, reporting progress; `None` when a newer plan made it stale
+/// part way (the slices done are in the cache, so asking again costs nothing for them).
 fn embed_job(
     job: &Job,
     factory: &mut EmbedderFactory,
     embedders: &mut HashMap<TokenPooling, Arc<dyn Embedder>>,
     cache: Option<&VectorCache>,
     reports: &Sender<Report>,
-) -> anyhow::Result<Report> {
+    poll: &mut dyn FnMut(&mut u64),
+) -> anyhow::Result<Option<Report>> {
     let embedder = match embedders.get(&job.pooling) {
         Some(e) => e.clone(),
         None => {
@@ -191,20 +213,25 @@ fn embed_job(
         }
     };
     let texts: Vec<&str> = job.texts.iter().map(String::as_str).collect();
-    let (vectors, report) = cache::embed_with_cache(
-        embedder.as_ref(),
-        cache,
-        &job.prefix,
-        &texts,
-        &mut |done, total| {
-            let _ = reports.send(Report::Progress {
-                id: job.id,
-                done,
-                total,
-            });
-        },
-    )?;
-    Ok(Report::Done {
+    let mut vectors = Vec::with_capacity(texts.len());
+    let mut embedded = 0;
+    for slice in texts.chunks(SLICE) {
+        let mut generation = 0;
+        poll(&mut generation);
+        if job.generation.is_some_and(|g| g < generation) {
+            return Ok(None);
+        }
+        let (v, report) =
+            cache::embed_with_cache(embedder.as_ref(), cache, &job.prefix, slice, &mut |_, _| {})?;
+        embedded += report.embedded;
+        vectors.extend(v);
+        let _ = reports.send(Report::Progress {
+            id: job.id,
+            done: vectors.len(),
+            total: texts.len(),
+        });
+    }
+    Ok(Some(Report::Done {
         id: job.id,
         pooling: job.pooling,
         keys: texts
@@ -212,8 +239,8 @@ fn embed_job(
             .map(|t| cache::text_key(&job.prefix, t))
             .collect(),
         vectors,
-        embedded: report.embedded,
-    })
+        embedded,
+    }))
 }
 
 #[cfg(test)]
