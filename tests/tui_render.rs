@@ -120,7 +120,7 @@ fn header_budget_bar_and_chunk_gutter_at_120x40() {
         s[0]
     );
     assert!(
-        s[1].contains("10 documents") && s[1].contains("tokens truncation loses"),
+        s[1].contains("10 documents") && s[1].contains("tokens lost to truncation"),
         "{}",
         s[1]
     );
@@ -260,4 +260,62 @@ fn board_scrolls_through_a_30000_word_document() {
     app.update(Action::NextChunk);
     assert_eq!(app.board_chunk, 2);
     assert!(screen(&app, 120, 40)[4].contains("chunk 3/"));
+}
+
+#[test]
+fn board_flags_oversize_sentences_and_marks_overlap() {
+    let mut app = app_with(demo_docs(), true, (120, 40));
+    for _ in 0..3 {
+        app.update(Action::WindowDown);
+    }
+    assert_eq!(app.current.plan.window, 64);
+    assert!(app.totals.oversize_sentences > 0);
+    let s = screen(&app, 120, 40);
+    assert!(s[1].contains("sentences over budget (62)"), "{}", s[1]);
+    // Open a document with a sentence over the budget and scroll to it.
+    let doc = (0..app.corpus.docs.len())
+        .find(|&d| !app.oversize_of(d).is_empty())
+        .unwrap();
+    let row = app.order.iter().position(|&d| d == doc).unwrap();
+    app.update(Action::SelectRow(row));
+    app.update(Action::FocusDocument);
+    let line = app
+        .layout
+        .lines
+        .iter()
+        .position(|l| l.segs.iter().any(|s| s.oversize))
+        .unwrap();
+    app.update(Action::Home);
+    app.update(Action::Move(line as isize));
+    let s = screen(&app, 120, 40);
+    let first_text_row = 5;
+    let flagged = s[first_text_row..]
+        .iter()
+        .filter(|l| l.chars().nth(render::GUTTER as usize - 2) == Some('!'))
+        .count();
+    assert!(flagged > 0, "{}", s.join("\n"));
+
+    // Token windows with overlap: lines inside a shared stretch say so in the gutter.
+    app.update(Action::BoundaryPrev);
+    assert_eq!(
+        app.current.plan.profile.cut.boundary,
+        kerf::profile::Boundary::Token
+    );
+    for _ in 0..4 {
+        app.update(Action::OverlapUp);
+    }
+    let overlap_line = app
+        .layout
+        .lines
+        .iter()
+        .position(|l| l.chunk_starts.is_empty() && l.segs.iter().any(|s| s.overlap))
+        .expect("a line inside an overlap");
+    app.update(Action::Home);
+    app.update(Action::Move(overlap_line as isize));
+    let s = screen(&app, 120, 40);
+    assert!(
+        s[first_text_row].starts_with(" ≈ overlap"),
+        "{}",
+        s.join("\n")
+    );
 }

@@ -716,6 +716,16 @@ impl App {
         if next == p.cut.overlap {
             return;
         }
+        // More than half the budget shared means most of every chunk is repeated text: the
+        // sweep leaves such plans out too.
+        let half = self.current.plan.budget() / 2;
+        if up && next > half {
+            self.say(
+                format!("overlap {next} would be more than half the {}-token budget; raise the window first (W)", half * 2),
+                true,
+            );
+            return;
+        }
         p.cut.overlap = next;
         self.apply(p);
     }

@@ -196,7 +196,7 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
                 .fg(Color::LightRed)
                 .add_modifier(Modifier::BOLD),
         ),
-        Span::raw(format!(" tokens truncation loses ({pct:.0}%)")),
+        Span::raw(format!(" tokens lost to truncation ({pct:.0}%)")),
         sep(),
         Span::styled(
             thousands(t.oversize_sentences),
@@ -209,7 +209,7 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
                 .add_modifier(Modifier::BOLD),
         ),
         Span::raw(format!(
-            " {} over the {}-token budget",
+            " {} over budget ({})",
             if t.oversize_sentences == 1 {
                 "sentence"
             } else {
@@ -485,7 +485,7 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
         } else if unseen {
             ("  unseen".to_string(), DIM)
         } else if overlap {
-            ("  ≈ overlap".to_string(), Style::new().fg(Color::Magenta))
+            (" ≈ overlap".to_string(), Style::new().fg(Color::Magenta))
         } else {
             (
                 format!("  {}", if chunk_here.is_some() { "│" } else { " " }),
