@@ -194,3 +194,60 @@ fn explore_in_tmux_changes_plan_and_saves_a_profile() {
         "{cut}"
     );
 }
+
+#[test]
+fn a_panic_restores_the_terminal() {
+    let tmux = Command::new("tmux").arg("-V").output();
+    assert!(
+        tmux.as_ref().is_ok_and(|o| o.status.success()),
+        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
+    );
+    common::model_dir();
+    let dir = tempfile::tempdir().unwrap();
+    let demo = common::repo().join("demo-texts");
+    // After the panic the shell reports the exit code and whether the tty is back in canonical
+    // (cooked) mode: raw mode left on would show `-icanon`.
+    let cmd = format!(
+        "KERF_EXPLORE_TEST_PANIC=1 {} explore --hash-embedder --no-cache {}; echo KERF-EXITED-$?; stty -a | grep -o -- '-*icanon' | sed 's/^/TTY-/'; sleep 600",
+        env!("CARGO_BIN_EXE_kerf"),
+        demo.display()
+    );
+    let s = Session {
+        socket: format!("kerf-test-panic-{}", std::process::id()),
+    };
+    let out = s.tmux(&[
+        "new-session",
+        "-d",
+        "-x",
+        "140",
+        "-y",
+        "45",
+        "-s",
+        "kerf",
+        "-c",
+        dir.path().to_str().unwrap(),
+        &cmd,
+    ]);
+    assert!(
+        out.status.success(),
+        "tmux new-session: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let end = s.wait_for("TTY-");
+    assert!(
+        end.contains("KERF_EXPLORE_TEST_PANIC is set"),
+        "panic message shown: {end}"
+    );
+    assert!(end.contains("KERF-EXITED-101"), "{end}");
+    // The message is printed on the restored screen, before the shell's next line, and
+    // nothing the explorer does while unwinding moves the cursor back over it.
+    let lines: Vec<&str> = end.lines().collect();
+    let at = |s: &str| lines.iter().position(|l| l.contains(s));
+    assert!(at("panicked at src/cli/explore.rs").is_some(), "{end}");
+    assert!(at("panicked at") < at("KERF-EXITED-101"), "{end}");
+    assert!(
+        end.contains("TTY-icanon"),
+        "terminal back in cooked mode: {end}"
+    );
+    assert!(!end.contains("window 256"), "alternate screen left: {end}");
+}

@@ -3,6 +3,7 @@
 //! terminal and makes sure the terminal is restored on every way out, a panic included.
 use std::io::Write;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 use std::time::Duration;
 
@@ -85,7 +86,15 @@ fn read_documents(input: &InputArgs) -> Result<(Vec<Document>, Vec<Notice>)> {
 
 struct TerminalGuard;
 
+/// Set while the screen is ours. Restoring twice (panic hook, then the guard while unwinding)
+/// would leave the alternate screen twice, and a second leave moves the cursor back to where
+/// the first enter saved it, over the panic message.
+static SCREEN_TAKEN: AtomicBool = AtomicBool::new(false);
+
 fn restore_terminal() {
+    if !SCREEN_TAKEN.swap(false, Ordering::SeqCst) {
+        return;
+    }
     let _ = terminal::disable_raw_mode();
     let _ = crossterm::execute!(
         std::io::stdout(),
@@ -179,12 +188,18 @@ pub fn run(a: ExploreArgs) -> Result<()> {
         restore_terminal();
         previous(info);
     }));
-    terminal::enable_raw_mode().context("switching the terminal to raw mode")?;
+    SCREEN_TAKEN.store(true, Ordering::SeqCst);
     let _guard = TerminalGuard;
+    terminal::enable_raw_mode().context("switching the terminal to raw mode")?;
     let mut out = std::io::stdout();
     crossterm::execute!(out, EnterAlternateScreen, EnableMouseCapture)
         .context("setting up the terminal")?;
     let mut term = Terminal::new(CrosstermBackend::new(std::io::stdout()))?;
+    // A hook for the end-to-end test that the panic path restores the terminal.
+    if std::env::var_os("KERF_EXPLORE_TEST_PANIC").is_some() {
+        term.draw(|f| render::draw(f, &app))?;
+        panic!("KERF_EXPLORE_TEST_PANIC is set: panicking with the screen up");
+    }
     let mut dirty = true;
     loop {
         for r in app.take_requests() {

@@ -185,6 +185,9 @@ pub enum Ident {
     Ref(u32),
 }
 
+/// A vector in memory: its identity under a token pooling.
+type VecId = (TokenPooling, Ident);
+
 /// A plan cut over the corpus.
 #[derive(Clone)]
 pub struct PlanState {
@@ -308,17 +311,26 @@ pub struct App {
 /// one chunk, with the model's default token pooling.
 pub fn baseline_profile(info: &ModelInfo, model_folder: Option<PathBuf>) -> Profile {
     let window = info.default_window();
-    let mut p = Profile::default();
-    p.name = format!("baseline-head-{window}");
-    p.about = "first window only: what a truncating encoder sees".into();
-    p.model.folder = model_folder;
-    p.cut.window = window;
-    p.cut.boundary = Boundary::Head;
-    p.cut.overlap = 0;
-    p.cut.min_chunk = 0;
-    p.pool.tokens = TokenPooling::Mean;
-    p.pool.chunks = ChunkPooling::First;
-    p
+    Profile {
+        name: format!("baseline-head-{window}"),
+        about: "first window only: what a truncating encoder sees".into(),
+        model: crate::profile::ModelSection {
+            folder: model_folder,
+        },
+        cut: crate::profile::CutSection {
+            window,
+            boundary: Boundary::Head,
+            overlap: 0,
+            min_chunk: 0,
+            prefix: String::new(),
+        },
+        pool: crate::profile::PoolSection {
+            tokens: TokenPooling::Mean,
+            chunks: ChunkPooling::First,
+            ..Default::default()
+        },
+        ..Profile::default()
+    }
 }
 
 impl App {
@@ -721,7 +733,7 @@ impl App {
         let half = self.current.plan.budget() / 2;
         if up && next > half {
             self.say(
-                format!("overlap {next} would be more than half the {}-token budget; raise the window first (W)", half * 2),
+                format!("overlap {next} would be more than half the {}-token budget; raise the window first (W)", self.current.plan.budget()),
                 true,
             );
             return;
@@ -823,7 +835,8 @@ impl App {
             }
         }
         for pooling in poolings {
-            let mut by_prefix: Vec<(String, Vec<String>, Vec<(TokenPooling, Ident)>)> = Vec::new();
+            // (prefix, texts, their identities)
+            let mut by_prefix: Vec<(String, Vec<String>, Vec<VecId>)> = Vec::new();
             for (i, r) in self.refs.iter().enumerate() {
                 let id = (pooling, Ident::Ref(i as u32));
                 if !missing(&id, &mut asked) {
