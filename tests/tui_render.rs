@@ -319,3 +319,58 @@ fn board_flags_oversize_sentences_and_marks_overlap() {
         s.join("\n")
     );
 }
+
+#[test]
+fn keys_and_mouse_map_to_actions() {
+    use crossterm::event::{
+        Event, KeyCode, KeyEvent, KeyModifiers, MouseButton, MouseEvent, MouseEventKind,
+    };
+    use kerf::tui::keys::action_for;
+    let mut app = app_with(demo_docs(), true, (120, 40));
+    let key = |c: char| Event::Key(KeyEvent::new(KeyCode::Char(c), KeyModifiers::NONE));
+    let mouse = |kind, column, row| {
+        Event::Mouse(MouseEvent {
+            kind,
+            column,
+            row,
+            modifiers: KeyModifiers::NONE,
+        })
+    };
+    assert_eq!(action_for(&key('O'), &app), Some(Action::OverlapUp));
+    assert_eq!(action_for(&key('b'), &app), Some(Action::BoundaryNext));
+    assert_eq!(action_for(&key('q'), &app), Some(Action::Quit));
+    let ctrl_c = Event::Key(KeyEvent::new(KeyCode::Char('c'), KeyModifiers::CONTROL));
+    assert_eq!(action_for(&ctrl_c, &app), Some(Action::Quit));
+    // Clicking a pane name switches to it; clicking a row of the list selects that document.
+    let tabs_row = render::areas((120, 40)).tabs.y;
+    let (x0, _, pane) = render::tab_spans()[2];
+    assert_eq!(
+        action_for(
+            &mouse(MouseEventKind::Down(MouseButton::Left), x0 + 1, tabs_row),
+            &app
+        ),
+        Some(Action::ShowPane(pane))
+    );
+    let body = render::areas((120, 40)).body;
+    assert_eq!(
+        action_for(
+            &mouse(MouseEventKind::Down(MouseButton::Left), 5, body.y + 3),
+            &app
+        ),
+        Some(Action::SelectRow(2))
+    );
+    assert_eq!(
+        action_for(&mouse(MouseEventKind::ScrollDown, 5, body.y + 3), &app),
+        Some(Action::Move(3))
+    );
+    // In the save prompt, letters are text: q does not quit.
+    app.update(Action::SavePrompt);
+    assert_eq!(action_for(&key('q'), &app), Some(Action::PromptChar('q')));
+    let esc = Event::Key(KeyEvent::new(KeyCode::Esc, KeyModifiers::NONE));
+    assert_eq!(action_for(&esc, &app), Some(Action::Cancel));
+    // Too small: only quitting does anything.
+    app.update(Action::Cancel);
+    app.update(Action::Resize(40, 12));
+    assert_eq!(action_for(&key('O'), &app), None);
+    assert_eq!(action_for(&key('q'), &app), Some(Action::Quit));
+}
