@@ -970,8 +970,11 @@ impl App {
         render::board_rows(self.size)
     }
 
+    /// Keep the selected row of the Stock list in view (the list shares its rows with the
+    /// problem lines under it, as drawn).
     fn clamp_stock(&mut self) {
-        let rows = self.page_rows().max(1);
+        let all = self.page_rows();
+        let rows = (all - self.problems.len().min(all / 3)).max(1);
         if self.row < self.stock_top {
             self.stock_top = self.row;
         } else if self.row >= self.stock_top + rows {
