@@ -137,7 +137,7 @@ fn explore_in_tmux_changes_plan_and_saves_a_profile() {
     // Save: the prompt suggests a name; replace it with ours.
     s.send(&[">"]);
     s.wait_for("save plan as:");
-    s.send(&["BSpace"; 60]);
+    s.send(&["C-u"]);
     s.type_text("mine.toml");
     s.send(&["Enter"]);
     s.wait_for("saved mine.toml");

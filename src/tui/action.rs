@@ -97,6 +97,8 @@ pub enum Action {
     PromptChar(char),
     /// Backspace in the prompt.
     PromptBackspace,
+    /// Ctrl-U in the prompt: clear the line.
+    PromptClear,
     /// Enter in the prompt.
     PromptSubmit,
     /// Answer to "overwrite?": true for yes.

@@ -634,6 +634,11 @@ impl App {
                     input.pop();
                 }
             }
+            Action::PromptClear => {
+                if let Mode::Prompt { input, .. } = &mut self.mode {
+                    input.clear();
+                }
+            }
             Action::PromptSubmit => self.submit_prompt(),
             Action::Confirm(yes) => {
                 if let Mode::ConfirmOverwrite { path } =

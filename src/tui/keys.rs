@@ -24,13 +24,16 @@ fn key(k: &KeyEvent, app: &App) -> Option<Action> {
     }
     match &app.mode {
         Mode::Prompt { .. } => {
+            if k.modifiers.contains(KeyModifiers::CONTROL) && k.code == KeyCode::Char('u') {
+                return Some(Action::PromptClear);
+            }
             return match k.code {
                 KeyCode::Enter => Some(Action::PromptSubmit),
                 KeyCode::Esc => Some(Action::Cancel),
                 KeyCode::Backspace => Some(Action::PromptBackspace),
                 KeyCode::Char(c) => Some(Action::PromptChar(c)),
                 _ => None,
-            }
+            };
         }
         Mode::ConfirmOverwrite { .. } => {
             return Some(match k.code {

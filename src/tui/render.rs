@@ -818,7 +818,7 @@ fn status(app: &App, area: Rect, buf: &mut Buffer) {
             ),
             Span::raw(input.clone()),
             Span::styled("█", Style::new().fg(Color::Yellow)),
-            Span::styled("   Enter confirms · Esc cancels", DIM),
+            Span::styled("   Enter confirms · Ctrl-U clears · Esc cancels", DIM),
         ]),
         Mode::ConfirmOverwrite { path } => Line::from(vec![Span::styled(
             format!(
@@ -864,7 +864,7 @@ fn status(app: &App, area: Rect, buf: &mut Buffer) {
 }
 
 /// Every key, for the help overlay and the README.
-pub const KEYS: [(&str, &str); 24] = [
+pub const KEYS: [(&str, &str); 25] = [
     ("Tab / Shift-Tab, 1 2 3", "switch pane: Stock, Board, Fit"),
     ("f, Enter", "open the selected document in the Board"),
     (
@@ -893,6 +893,7 @@ pub const KEYS: [(&str, &str); 24] = [
     (">", "save the plan as a profile (asks for a file name)"),
     ("<", "load a profile"),
     ("y", "confirm overwriting a file when saving"),
+    ("Ctrl-U", "clear the prompt line"),
     ("Esc", "cancel a prompt; quit otherwise"),
     ("?", "this help (any key closes it)"),
     ("q", "quit"),
@@ -901,7 +902,7 @@ pub const KEYS: [(&str, &str); 24] = [
 ];
 
 fn help(area: Rect, buf: &mut Buffer) {
-    let w = area.width.min(84);
+    let w = area.width.min(96);
     let h = area.height.min(KEYS.len() as u16 + 2);
     let r = Rect::new(
         area.x + (area.width - w) / 2,
