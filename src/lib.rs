@@ -21,6 +21,7 @@ pub mod segment;
 pub mod split;
 pub mod survey;
 pub mod tokens;
+pub mod tui;
 
 use rayon::prelude::*;
 

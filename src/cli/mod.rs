@@ -15,6 +15,7 @@ use kerf::tokens::TokenCounter;
 mod comparecmd;
 mod cut;
 mod embed;
+mod explore;
 mod modelcmd;
 mod profilecmd;
 mod survey;
@@ -45,6 +46,8 @@ enum Command {
     Compare(comparecmd::CompareArgs),
     /// Sweep a grid of plans: quality against cost, the Pareto front, a recommended profile.
     Sweep(sweepcmd::SweepArgs),
+    /// The planning terminal UI: budgets, chunk boundaries and similarity shifts, live.
+    Explore(explore::ExploreArgs),
     /// Check, show or create profiles.
     #[command(subcommand)]
     Profile(profilecmd::ProfileCmd),
@@ -201,6 +204,7 @@ pub fn run() -> ExitCode {
         Command::Embed(a) => embed::run(a),
         Command::Compare(a) => comparecmd::run(a),
         Command::Sweep(a) => sweepcmd::run(a),
+        Command::Explore(a) => explore::run(a),
         Command::Profile(c) => profilecmd::run(c),
     };
     match result {

@@ -1,0 +1,1679 @@
+//! The explorer's state and [`App::update`], the only place it changes.
+//!
+//! Re-cutting is pure and fast, so it happens inside `update` the moment a plan key is pressed;
+//! embedding is not, so `update` only queues [`Request`]s for texts whose vectors are neither
+//! in memory nor already asked for, and the event loop hands them to the worker. Vectors come
+//! back as [`Action::Worker`] reports and are kept in memory by (token pooling, cache key), so a
+//! plan seen before costs nothing the second time.
+use std::collections::{HashMap, HashSet};
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+use crate::compare::engine::{self, Corpus, DocScore};
+use crate::compare::metrics::Summary;
+use crate::compare::refs::Reference;
+use crate::compare::sweep::plan_name;
+use crate::corpus::Notice;
+use crate::embed::TokenPooling;
+use crate::model::ModelInfo;
+use crate::plan::{self, ResolvedPlan};
+use crate::pool::{self, ChunkPooling};
+use crate::profile::{Boundary, Profile};
+use crate::split::{self, Chunk};
+use crate::tokens::TokenCounter;
+
+use super::action::{Action, Pane};
+use super::render;
+use super::worker::{Job, Report, Request};
+
+/// Window sizes the w/W keys step through (those above the model's limit are skipped).
+pub const WINDOW_STEPS: [usize; 8] = [64, 128, 192, 256, 320, 384, 448, 512];
+/// Overlaps the o/O keys step through.
+pub const OVERLAP_STEPS: [usize; 10] = [0, 8, 16, 32, 48, 64, 96, 128, 192, 256];
+/// Minimum last-chunk sizes the m/M keys step through.
+pub const MIN_CHUNK_STEPS: [usize; 7] = [0, 8, 16, 32, 48, 64, 96];
+const TOKEN_POOLINGS: [TokenPooling; 3] =
+    [TokenPooling::Mean, TokenPooling::Cls, TokenPooling::Max];
+
+/// What the explorer starts from.
+pub struct AppInit {
+    /// Documents, analysed.
+    pub corpus: Corpus,
+    /// The model's tokenizer (re-cutting needs it for pieces inside words).
+    pub counter: TokenCounter,
+    /// The model's limits.
+    pub info: ModelInfo,
+    /// How the model is named in the header.
+    pub model_label: String,
+    /// The plan to start with.
+    pub plan: ResolvedPlan,
+    /// Reference texts (empty: none given).
+    pub refs: Vec<Reference>,
+    /// Where the references came from, if anywhere.
+    pub refs_origin: Option<String>,
+    /// Files skipped or documents left out, with the reason.
+    pub problems: Vec<Notice>,
+    /// Terminal size (columns, rows).
+    pub size: (u16, u16),
+}
+
+/// Order of the Stock list.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SortOrder {
+    /// As read.
+    Input,
+    /// Longest first.
+    Length,
+    /// Most tokens past the first window first.
+    Overflow,
+    /// Closest to the selected reference first (current plan).
+    Similarity,
+}
+
+impl SortOrder {
+    /// Label in the list title.
+    pub fn label(self) -> &'static str {
+        match self {
+            SortOrder::Input => "input order",
+            SortOrder::Length => "length",
+            SortOrder::Overflow => "overflow",
+            SortOrder::Similarity => "similarity",
+        }
+    }
+    fn next(self) -> Self {
+        match self {
+            SortOrder::Input => SortOrder::Length,
+            SortOrder::Length => SortOrder::Overflow,
+            SortOrder::Overflow => SortOrder::Similarity,
+            SortOrder::Similarity => SortOrder::Input,
+        }
+    }
+}
+
+/// What the prompt line asks for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PromptKind {
+    /// A file name to save the plan to.
+    Save,
+    /// A profile to load.
+    Load,
+}
+
+/// Modal state on top of the panes.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Mode {
+    /// Keys act on the panes.
+    Normal,
+    /// The help overlay is up.
+    Help,
+    /// The prompt line takes the keys.
+    Prompt {
+        /// What it asks for.
+        kind: PromptKind,
+        /// Typed so far.
+        input: String,
+    },
+    /// A save target exists; waiting for y.
+    ConfirmOverwrite {
+        /// The file that would be replaced.
+        path: PathBuf,
+    },
+}
+
+/// A line for the status row.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Status {
+    /// The text.
+    pub text: String,
+    /// Shown as an error.
+    pub error: bool,
+}
+
+/// Corpus figures under a plan.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct Totals {
+    /// Documents.
+    pub documents: usize,
+    /// Content tokens.
+    pub tokens: usize,
+    /// Chunks under the plan.
+    pub chunks: usize,
+    /// Tokens a truncating embed at this window never sees.
+    pub unseen_tokens: usize,
+    /// Sentences longer than the chunk budget.
+    pub oversize_sentences: usize,
+}
+
+/// Scores of a plan for every reference.
+#[derive(Debug, Clone)]
+pub struct Scored {
+    /// Per reference, documents best first.
+    pub ranking: Vec<Vec<DocScore>>,
+    /// Per reference and document, the cosine of each chunk.
+    pub chunk_cos: Vec<Vec<Vec<f32>>>,
+    /// Ranking metrics over references with expectations.
+    pub summary: Summary,
+}
+
+impl Scored {
+    /// (rank from 1, score) of a document for a reference.
+    pub fn rank_score(&self, reference: usize, doc: usize) -> Option<(usize, f32)> {
+        self.ranking[reference]
+            .iter()
+            .position(|s| s.doc == doc)
+            .map(|p| (p + 1, self.ranking[reference][p].score))
+    }
+}
+
+/// In-memory identity of a vector: a chunk by its document and byte range under a prefix, or a
+/// reference by its index. Hashing every chunk's text on every key press would cost more than
+/// re-cutting; the SQLite cache behind the worker still keys by the text itself.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Ident {
+    /// A chunk of a document.
+    Chunk {
+        /// Hash of the prefix put before the chunk.
+        prefix: u64,
+        /// Document index.
+        doc: u32,
+        /// First byte.
+        start: u32,
+        /// Byte past the end.
+        end: u32,
+    },
+    /// A reference by its index.
+    Ref(u32),
+}
+
+/// A vector in memory: its identity under a token pooling.
+type VecId = (TokenPooling, Ident);
+
+/// A plan cut over the corpus.
+#[derive(Clone)]
+pub struct PlanState {
+    /// The plan.
+    pub plan: ResolvedPlan,
+    /// Chunks of each document.
+    pub chunks: Vec<Vec<Chunk>>,
+    /// Identity of each chunk's vector.
+    pub keys: Vec<Vec<Ident>>,
+    /// Scores, once every vector is in.
+    pub scored: Option<Scored>,
+}
+
+/// How a stretch of the Board's text is drawn.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Seg {
+    /// Bytes of the document.
+    pub bytes: Range<usize>,
+    /// The chunk it belongs to (the later one inside an overlap).
+    pub chunk: Option<usize>,
+    /// Inside two chunks.
+    pub overlap: bool,
+    /// Past the last chunk: text this plan never embeds.
+    pub unseen: bool,
+    /// Inside a sentence that alone exceeds the budget.
+    pub oversize: bool,
+}
+
+/// One screen line of the Board.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct VisualLine {
+    /// Bytes of the document on this line (no newline).
+    pub bytes: Range<usize>,
+    /// Stretches with their drawing.
+    pub segs: Vec<Seg>,
+    /// Chunks that start on this line.
+    pub chunk_starts: Range<usize>,
+}
+
+/// The Board's text wrapped to its width, computed once per plan, document or size change so
+/// drawing a frame only touches the visible lines.
+#[derive(Debug, Clone, Default)]
+pub struct BoardLayout {
+    /// The document.
+    pub doc: usize,
+    /// Text columns.
+    pub width: usize,
+    /// Screen lines.
+    pub lines: Vec<VisualLine>,
+    /// Line on which each chunk starts.
+    pub chunk_line: Vec<usize>,
+}
+
+/// The explorer's whole state.
+pub struct App {
+    /// Documents, analysed.
+    pub corpus: Corpus,
+    counter: TokenCounter,
+    /// Model limits.
+    pub info: ModelInfo,
+    /// Model name in the header.
+    pub model_label: String,
+    /// References.
+    pub refs: Vec<Reference>,
+    /// Where they came from.
+    pub refs_origin: Option<String>,
+    /// Skipped files and documents left out.
+    pub problems: Vec<Notice>,
+    /// Content tokens per document.
+    pub doc_tokens: Vec<usize>,
+    /// Per document, each sentence's bytes and content tokens.
+    sentence_tokens: Vec<Vec<(Range<usize>, usize)>>,
+    /// The plan being shaped.
+    pub current: PlanState,
+    /// The truncation baseline.
+    pub baseline: PlanState,
+    /// A plan pinned for comparison (instead of the baseline).
+    pub pinned: Option<PlanState>,
+    /// Figures of the current plan.
+    pub totals: Totals,
+    /// Overlap to restore when leaving the `head` rule.
+    stashed_overlap: usize,
+    /// Pane shown.
+    pub pane: Pane,
+    /// Modal state.
+    pub mode: Mode,
+    /// Stock order.
+    pub sort: SortOrder,
+    /// Document indices in Stock order.
+    pub order: Vec<usize>,
+    /// Selected row of the Stock list.
+    pub row: usize,
+    /// First visible row of the Stock list.
+    pub stock_top: usize,
+    /// Selected reference.
+    pub reference: usize,
+    /// Board layout of the selected document.
+    pub layout: BoardLayout,
+    /// First visible Board line.
+    pub scroll: usize,
+    /// Chunk the Board cursor is on.
+    pub board_chunk: usize,
+    /// Terminal size.
+    pub size: (u16, u16),
+    /// Last message.
+    pub status: Option<Status>,
+    /// Set when the user quits.
+    pub quit: bool,
+    vectors: HashMap<(TokenPooling, Ident), Vec<f32>>,
+    pending: HashMap<u64, Vec<(TokenPooling, Ident)>>,
+    pending_keys: HashSet<(TokenPooling, Ident)>,
+    progress: HashMap<u64, (usize, usize)>,
+    outbox: Vec<Request>,
+    next_job: u64,
+    generation: u64,
+    /// Inputs the worker had to embed (not cached), for the status line.
+    pub embedded_total: usize,
+}
+
+/// The truncation baseline: the first window at the model's configured length, scored by that
+/// one chunk, with the model's default token pooling.
+pub fn baseline_profile(info: &ModelInfo, model_folder: Option<PathBuf>) -> Profile {
+    let window = info.default_window();
+    Profile {
+        name: format!("baseline-head-{window}"),
+        about: "first window only: what a truncating encoder sees".into(),
+        model: crate::profile::ModelSection {
+            folder: model_folder,
+        },
+        cut: crate::profile::CutSection {
+            window,
+            boundary: Boundary::Head,
+            overlap: 0,
+            min_chunk: 0,
+            prefix: String::new(),
+        },
+        pool: crate::profile::PoolSection {
+            tokens: TokenPooling::Mean,
+            chunks: ChunkPooling::First,
+            ..Default::default()
+        },
+        ..Profile::default()
+    }
+}
+
+impl App {
+    /// Build the state and queue the first embedding jobs.
+    pub fn new(init: AppInit) -> Result<Self, plan::PlanError> {
+        let AppInit {
+            corpus,
+            counter,
+            info,
+            model_label,
+            plan,
+            refs,
+            refs_origin,
+            problems,
+            size,
+        } = init;
+        let doc_tokens: Vec<usize> = corpus.analyses.iter().map(|a| a.tokens.len()).collect();
+        let sentence_tokens = corpus
+            .analyses
+            .iter()
+            .map(|a| {
+                let t = split::token_ranges_of(&a.tokens, &a.segments.sentences);
+                a.segments
+                    .sentences
+                    .iter()
+                    .cloned()
+                    .zip(t.iter().map(|r| r.len()))
+                    .collect()
+            })
+            .collect();
+        let base = plan::resolve(
+            &baseline_profile(&info, plan.profile.model.folder.clone()),
+            &info,
+            &counter,
+            "baseline",
+        )?;
+        let current = cut_state(&corpus, &counter, plan);
+        let baseline = cut_state(&corpus, &counter, base);
+        let order = (0..corpus.docs.len()).collect();
+        let mut app = App {
+            corpus,
+            counter,
+            info,
+            model_label,
+            refs,
+            refs_origin,
+            problems,
+            doc_tokens,
+            sentence_tokens,
+            current,
+            baseline,
+            pinned: None,
+            totals: Totals::default(),
+            stashed_overlap: 0,
+            pane: Pane::Stock,
+            mode: Mode::Normal,
+            sort: SortOrder::Input,
+            order,
+            row: 0,
+            stock_top: 0,
+            reference: 0,
+            layout: BoardLayout::default(),
+            scroll: 0,
+            board_chunk: 0,
+            size,
+            status: None,
+            quit: false,
+            vectors: HashMap::new(),
+            pending: HashMap::new(),
+            pending_keys: HashSet::new(),
+            progress: HashMap::new(),
+            outbox: Vec::new(),
+            next_job: 1,
+            generation: 0,
+            embedded_total: 0,
+        };
+        app.totals = app.compute_totals();
+        app.request_missing();
+        app.relayout(None);
+        Ok(app)
+    }
+
+    /// The model's tokenizer.
+    pub fn counter(&self) -> &TokenCounter {
+        &self.counter
+    }
+
+    /// Requests for the worker queued since the last call.
+    pub fn take_requests(&mut self) -> Vec<Request> {
+        std::mem::take(&mut self.outbox)
+    }
+
+    /// The plan compared against: the pinned one, else the baseline.
+    pub fn comparison(&self) -> &PlanState {
+        self.pinned.as_ref().unwrap_or(&self.baseline)
+    }
+
+    /// Document selected in the Stock list (and shown in the Board and Fit panes).
+    pub fn selected_doc(&self) -> usize {
+        self.order.get(self.row).copied().unwrap_or(0)
+    }
+
+    /// True while the worker has jobs of ours.
+    pub fn busy(&self) -> bool {
+        !self.pending.is_empty()
+    }
+
+    /// (done, total) inputs across pending jobs.
+    pub fn progress(&self) -> (usize, usize) {
+        let mut done = 0;
+        let mut total = 0;
+        for (id, keys) in &self.pending {
+            match self.progress.get(id) {
+                Some(&(d, t)) => {
+                    done += d;
+                    total += t;
+                }
+                None => total += keys.len(),
+            }
+        }
+        (done, total)
+    }
+
+    /// Oversize sentences of a document under the current budget (byte ranges).
+    pub fn oversize_of(&self, doc: usize) -> Vec<Range<usize>> {
+        let budget = self.current.plan.budget();
+        self.sentence_tokens[doc]
+            .iter()
+            .filter(|(_, t)| *t > budget)
+            .map(|(r, _)| r.clone())
+            .collect()
+    }
+
+    /// The chunk of the selected document best matching the selected reference.
+    pub fn best_chunk(&self) -> Option<usize> {
+        let s = self.current.scored.as_ref()?;
+        let doc = self.selected_doc();
+        let cos = s.chunk_cos.get(self.reference)?.get(doc)?;
+        best_index(cos)
+    }
+
+    /// Apply one action.
+    pub fn update(&mut self, action: Action) {
+        // A message stays up until the next thing the user does.
+        if !matches!(action, Action::Worker(_) | Action::Resize(..)) {
+            self.status = None;
+        }
+        match action {
+            Action::Quit => self.quit = true,
+            Action::NextPane => self.pane = step_pane(self.pane, 1),
+            Action::PrevPane => self.pane = step_pane(self.pane, -1),
+            Action::ShowPane(p) => self.pane = p,
+            Action::FocusDocument => {
+                self.pane = Pane::Board;
+                self.relayout(None);
+            }
+            Action::WindowDown | Action::WindowUp => {
+                self.change_window(matches!(action, Action::WindowUp))
+            }
+            Action::OverlapDown | Action::OverlapUp => {
+                self.change_overlap(matches!(action, Action::OverlapUp))
+            }
+            Action::MinChunkDown | Action::MinChunkUp => {
+                let mut p = self.current.plan.profile.clone();
+                p.cut.min_chunk = step(
+                    &MIN_CHUNK_STEPS,
+                    p.cut.min_chunk,
+                    matches!(action, Action::MinChunkUp),
+                );
+                self.apply(p);
+            }
+            Action::BoundaryNext | Action::BoundaryPrev => {
+                let mut p = self.current.plan.profile.clone();
+                let i = Boundary::ALL
+                    .iter()
+                    .position(|b| *b == p.cut.boundary)
+                    .unwrap_or(0);
+                let n = Boundary::ALL.len();
+                let j = if matches!(action, Action::BoundaryNext) {
+                    (i + 1) % n
+                } else {
+                    (i + n - 1) % n
+                };
+                let next = Boundary::ALL[j];
+                if next == Boundary::Head {
+                    self.stashed_overlap = p.cut.overlap;
+                    p.cut.overlap = 0;
+                } else if p.cut.boundary == Boundary::Head {
+                    p.cut.overlap = self.stashed_overlap;
+                }
+                p.cut.boundary = next;
+                self.apply(p);
+            }
+            Action::TokensNext | Action::TokensPrev => {
+                let mut p = self.current.plan.profile.clone();
+                p.pool.tokens = cycle(
+                    &TOKEN_POOLINGS,
+                    p.pool.tokens,
+                    matches!(action, Action::TokensNext),
+                );
+                self.apply(p);
+            }
+            Action::ChunksNext | Action::ChunksPrev => {
+                let mut p = self.current.plan.profile.clone();
+                p.pool.chunks = cycle(
+                    &ChunkPooling::ALL,
+                    p.pool.chunks,
+                    matches!(action, Action::ChunksNext),
+                );
+                self.apply(p);
+            }
+            Action::Pin => {
+                let name = plan_name(&self.current.plan.profile);
+                self.pinned = Some(self.current.clone());
+                self.say(
+                    format!("pinned {name}: the Fit pane now compares against it"),
+                    false,
+                );
+            }
+            Action::Unpin => {
+                self.pinned = None;
+                self.say("comparing against the truncation baseline".into(), false);
+            }
+            Action::Move(n) => self.move_by(n),
+            Action::Page(n) => {
+                let page = self.page_rows() as isize;
+                self.move_by(n * page.max(1));
+            }
+            Action::Home => self.move_by(isize::MIN / 2),
+            Action::End => self.move_by(isize::MAX / 2),
+            Action::SelectRow(r) => {
+                if r < self.order.len() {
+                    self.row = r;
+                    self.relayout(None);
+                }
+            }
+            Action::NextChunk | Action::PrevChunk => {
+                let n = self.current.chunks.get(self.layout.doc).map_or(0, Vec::len);
+                if n > 0 {
+                    self.board_chunk = if matches!(action, Action::NextChunk) {
+                        (self.board_chunk + 1).min(n - 1)
+                    } else {
+                        self.board_chunk.saturating_sub(1)
+                    };
+                    self.scroll_to_chunk(self.board_chunk);
+                }
+                self.pane = Pane::Board;
+            }
+            Action::BestChunk => match self.best_chunk() {
+                Some(b) => {
+                    self.pane = Pane::Board;
+                    self.relayout(None);
+                    self.board_chunk = b;
+                    self.scroll_to_chunk(b);
+                }
+                None if self.refs.is_empty() => self.say(
+                    "no references: start with --refs FILE to find best chunks".into(),
+                    true,
+                ),
+                None => self.say(
+                    "best chunk not known yet: embedding is still running".into(),
+                    false,
+                ),
+            },
+            Action::NextRef | Action::PrevRef => {
+                let n = self.refs.len();
+                if n > 0 {
+                    self.reference = if matches!(action, Action::NextRef) {
+                        (self.reference + 1) % n
+                    } else {
+                        (self.reference + n - 1) % n
+                    };
+                    if self.sort == SortOrder::Similarity {
+                        self.resort_keep_selection();
+                    }
+                }
+            }
+            Action::Sort => {
+                self.sort = self.sort.next();
+                self.resort_keep_selection();
+            }
+            Action::SavePrompt => {
+                self.mode = Mode::Prompt {
+                    kind: PromptKind::Save,
+                    input: format!("{}.toml", plan_name(&self.current.plan.profile)),
+                }
+            }
+            Action::LoadPrompt => {
+                self.mode = Mode::Prompt {
+                    kind: PromptKind::Load,
+                    input: String::new(),
+                }
+            }
+            Action::PromptChar(c) => {
+                if let Mode::Prompt { input, .. } = &mut self.mode {
+                    input.push(c);
+                }
+            }
+            Action::PromptBackspace => {
+                if let Mode::Prompt { input, .. } = &mut self.mode {
+                    input.pop();
+                }
+            }
+            Action::PromptClear => {
+                if let Mode::Prompt { input, .. } = &mut self.mode {
+                    input.clear();
+                }
+            }
+            Action::PromptSubmit => self.submit_prompt(),
+            Action::Confirm(yes) => {
+                if let Mode::ConfirmOverwrite { path } =
+                    std::mem::replace(&mut self.mode, Mode::Normal)
+                {
+                    if yes {
+                        self.save(&path, true);
+                    } else {
+                        self.say(
+                            format!("not saved: {} kept as it was", path.display()),
+                            false,
+                        );
+                    }
+                }
+            }
+            Action::Cancel => {
+                if matches!(
+                    self.mode,
+                    Mode::Prompt { .. } | Mode::ConfirmOverwrite { .. }
+                ) {
+                    self.say("cancelled".into(), false);
+                }
+                self.mode = Mode::Normal;
+            }
+            Action::ToggleHelp => {
+                self.mode = if self.mode == Mode::Help {
+                    Mode::Normal
+                } else {
+                    Mode::Help
+                }
+            }
+            Action::Resize(w, h) => {
+                self.size = (w, h);
+                self.relayout(None);
+            }
+            Action::Worker(r) => self.on_report(r),
+        }
+    }
+
+    fn say(&mut self, text: String, error: bool) {
+        self.status = Some(Status { text, error });
+    }
+
+    fn change_window(&mut self, up: bool) {
+        let mut p = self.current.plan.profile.clone();
+        let limit = self.info.max_position_embeddings;
+        let steps: Vec<usize> = WINDOW_STEPS
+            .iter()
+            .copied()
+            .filter(|&w| w <= limit)
+            .collect();
+        let next = step(&steps, p.cut.window, up);
+        if next == p.cut.window {
+            self.say(
+                if up {
+                    format!("window {next} is the largest step (model limit {limit})")
+                } else {
+                    format!("window {next} is the smallest step")
+                },
+                false,
+            );
+            return;
+        }
+        p.cut.window = next;
+        // Keep overlap and the minimum chunk inside the new budget.
+        let fixed = self.current.plan.specials + self.current.plan.prefix_tokens;
+        let budget = next.saturating_sub(fixed);
+        let mut notes = Vec::new();
+        if p.cut.overlap >= budget / 2 && p.cut.overlap > 0 {
+            p.cut.overlap = largest_below(&OVERLAP_STEPS, budget / 2);
+            notes.push(format!("overlap lowered to {}", p.cut.overlap));
+        }
+        if p.cut.min_chunk >= budget / 2 && p.cut.min_chunk > 0 {
+            p.cut.min_chunk = largest_below(&MIN_CHUNK_STEPS, budget / 2);
+            notes.push(format!("min chunk lowered to {}", p.cut.min_chunk));
+        }
+        if self.apply(p) && !notes.is_empty() {
+            self.say(notes.join(", "), false);
+        }
+    }
+
+    fn change_overlap(&mut self, up: bool) {
+        let mut p = self.current.plan.profile.clone();
+        if p.cut.boundary == Boundary::Head {
+            self.say(
+                "overlap has no meaning with boundary head (one chunk per document): press b for another rule".into(),
+                true,
+            );
+            return;
+        }
+        let next = step(&OVERLAP_STEPS, p.cut.overlap, up);
+        if next == p.cut.overlap {
+            return;
+        }
+        // More than half the budget shared means most of every chunk is repeated text: the
+        // sweep leaves such plans out too.
+        let half = self.current.plan.budget() / 2;
+        if up && next > half {
+            self.say(
+                format!("overlap {next} would be more than half the {}-token budget; raise the window first (W)", self.current.plan.budget()),
+                true,
+            );
+            return;
+        }
+        p.cut.overlap = next;
+        self.apply(p);
+    }
+
+    /// Resolve and switch to a profile; false (with a message) when it does not fit the model.
+    fn apply(&mut self, mut profile: Profile) -> bool {
+        profile.name = plan_name(&profile);
+        let cur = &self.current.plan.profile;
+        if profile.cut == cur.cut && profile.pool == cur.pool && profile.model == cur.model {
+            return false;
+        }
+        let plan = match plan::resolve(&profile, &self.info, &self.counter, "plan") {
+            Ok(p) => p,
+            Err(e) => {
+                self.say(e.message, true);
+                return false;
+            }
+        };
+        let top_byte = self.layout.lines.get(self.scroll).map(|l| l.bytes.start);
+        self.current = cut_state(&self.corpus, &self.counter, plan);
+        self.generation += 1;
+        self.outbox.push(Request::Generation(self.generation));
+        self.totals = self.compute_totals();
+        self.request_missing();
+        self.rescore();
+        self.resort_keep_selection();
+        self.relayout(top_byte);
+        true
+    }
+
+    fn compute_totals(&self) -> Totals {
+        let budget = self.current.plan.budget();
+        Totals {
+            documents: self.corpus.docs.len(),
+            tokens: self.doc_tokens.iter().sum(),
+            chunks: self.current.chunks.iter().map(Vec::len).sum(),
+            unseen_tokens: self
+                .doc_tokens
+                .iter()
+                .map(|n| n.saturating_sub(budget))
+                .sum(),
+            oversize_sentences: self
+                .sentence_tokens
+                .iter()
+                .flatten()
+                .filter(|(_, t)| *t > budget)
+                .count(),
+        }
+    }
+
+    /// Queue embedding jobs for every vector the current and comparison plans lack.
+    fn request_missing(&mut self) {
+        let mut jobs: Vec<(Job, Vec<(TokenPooling, Ident)>)> = Vec::new();
+        let states: Vec<&PlanState> = [
+            Some(&self.current),
+            Some(&self.baseline),
+            self.pinned.as_ref(),
+        ]
+        .into_iter()
+        .flatten()
+        .collect();
+        let mut asked: HashSet<(TokenPooling, Ident)> = HashSet::new();
+        let mut poolings: Vec<TokenPooling> = Vec::new();
+        let missing = |id: &(TokenPooling, Ident), asked: &mut HashSet<(TokenPooling, Ident)>| {
+            !self.vectors.contains_key(id) && !self.pending_keys.contains(id) && asked.insert(*id)
+        };
+        for st in &states {
+            let pooling = st.plan.profile.pool.tokens;
+            if !poolings.contains(&pooling) {
+                poolings.push(pooling);
+            }
+            let mut texts = Vec::new();
+            let mut ids = Vec::new();
+            for (d, keys) in st.keys.iter().enumerate() {
+                for (c, k) in keys.iter().enumerate() {
+                    let id = (pooling, *k);
+                    if missing(&id, &mut asked) {
+                        texts.push(
+                            self.corpus.docs[d].text[st.chunks[d][c].byte_range.clone()]
+                                .to_string(),
+                        );
+                        ids.push(id);
+                    }
+                }
+            }
+            if !texts.is_empty() {
+                let job = Job {
+                    id: 0,
+                    generation: Some(self.generation),
+                    pooling,
+                    prefix: st.plan.profile.cut.prefix.clone(),
+                    texts,
+                };
+                jobs.push((job, ids));
+            }
+        }
+        for pooling in poolings {
+            // (prefix, texts, their identities)
+            let mut by_prefix: Vec<(String, Vec<String>, Vec<VecId>)> = Vec::new();
+            for (i, r) in self.refs.iter().enumerate() {
+                let id = (pooling, Ident::Ref(i as u32));
+                if !missing(&id, &mut asked) {
+                    continue;
+                }
+                match by_prefix.iter_mut().find(|(p, _, _)| *p == r.prefix) {
+                    Some((_, t, ids)) => {
+                        t.push(r.text.clone());
+                        ids.push(id);
+                    }
+                    None => by_prefix.push((r.prefix.clone(), vec![r.text.clone()], vec![id])),
+                }
+            }
+            for (prefix, texts, ids) in by_prefix {
+                // References first: the Fit pane needs them before any chunk helps.
+                let job = Job {
+                    id: 0,
+                    generation: None,
+                    pooling,
+                    prefix,
+                    texts,
+                };
+                jobs.insert(0, (job, ids));
+            }
+        }
+        for (mut job, ids) in jobs {
+            job.id = self.next_job;
+            self.next_job += 1;
+            self.pending_keys.extend(ids.iter().copied());
+            self.pending.insert(job.id, ids);
+            self.outbox.push(Request::Embed(job));
+        }
+    }
+
+    fn on_report(&mut self, r: Report) {
+        match r {
+            Report::Progress { id, done, total } => {
+                if self.pending.contains_key(&id) {
+                    self.progress.insert(id, (done, total));
+                }
+            }
+            Report::Done {
+                id,
+                pooling,
+                keys: _,
+                vectors,
+                embedded,
+            } => {
+                // The vectors come back in the order the job listed its texts.
+                let ids = self.pending.get(&id).cloned().unwrap_or_default();
+                self.forget_job(id);
+                self.embedded_total += embedded;
+                for ((p, k), v) in ids.into_iter().zip(vectors) {
+                    debug_assert_eq!(p, pooling);
+                    self.vectors.insert((p, k), v);
+                }
+                self.rescore();
+                if self.sort == SortOrder::Similarity {
+                    self.resort_keep_selection();
+                }
+            }
+            Report::Skipped { id } => {
+                self.forget_job(id);
+                self.request_missing();
+            }
+            Report::Failed { id, message } => {
+                self.forget_job(id);
+                self.say(format!("embedding failed: {message}"), true);
+            }
+        }
+    }
+
+    fn forget_job(&mut self, id: u64) {
+        if let Some(keys) = self.pending.remove(&id) {
+            for k in keys {
+                self.pending_keys.remove(&k);
+            }
+        }
+        self.progress.remove(&id);
+    }
+
+    fn rescore(&mut self) {
+        let scored = |st: &PlanState| {
+            if st.scored.is_some() {
+                return st.scored.clone();
+            }
+            score_state(st, &self.corpus, &self.refs, &self.vectors)
+        };
+        self.current.scored = scored(&self.current);
+        self.baseline.scored = scored(&self.baseline);
+        if let Some(p) = &self.pinned {
+            let s = scored(p);
+            if let Some(p) = &mut self.pinned {
+                p.scored = s;
+            }
+        }
+    }
+
+    fn resort(&mut self) {
+        let n = self.corpus.docs.len();
+        let mut order: Vec<usize> = (0..n).collect();
+        let budget = self.current.plan.budget();
+        match self.sort {
+            SortOrder::Input => {}
+            SortOrder::Length => order.sort_by_key(|&d| std::cmp::Reverse(self.doc_tokens[d])),
+            SortOrder::Overflow => {
+                order.sort_by_key(|&d| std::cmp::Reverse(self.doc_tokens[d].saturating_sub(budget)))
+            }
+            SortOrder::Similarity => {
+                if let Some(s) = &self.current.scored {
+                    let mut score = vec![f32::NEG_INFINITY; n];
+                    for ds in &s.ranking[self.reference] {
+                        score[ds.doc] = ds.score;
+                    }
+                    order.sort_by(|&a, &b| score[b].total_cmp(&score[a]));
+                }
+            }
+        }
+        self.order = order;
+    }
+
+    /// Re-sort the Stock list keeping the selected document selected (so the Board stays).
+    fn resort_keep_selection(&mut self) {
+        let doc = self.selected_doc();
+        self.resort();
+        self.row = self.order.iter().position(|&d| d == doc).unwrap_or(0);
+        self.clamp_stock();
+    }
+
+    fn page_rows(&self) -> usize {
+        render::board_rows(self.size)
+    }
+
+    /// Keep the selected row of the Stock list in view (the list shares its rows with the
+    /// problem lines under it, as drawn).
+    fn clamp_stock(&mut self) {
+        let all = self.page_rows();
+        let rows = (all - self.problems.len().min(all / 3)).max(1);
+        if self.row < self.stock_top {
+            self.stock_top = self.row;
+        } else if self.row >= self.stock_top + rows {
+            self.stock_top = self.row + 1 - rows;
+        }
+    }
+
+    fn move_by(&mut self, n: isize) {
+        match self.pane {
+            Pane::Stock | Pane::Fit => {
+                let len = self.order.len();
+                if len == 0 {
+                    return;
+                }
+                let row = (self.row as isize)
+                    .saturating_add(n)
+                    .clamp(0, len as isize - 1) as usize;
+                if row != self.row {
+                    self.row = row;
+                    self.clamp_stock();
+                    self.relayout(None);
+                }
+            }
+            Pane::Board => {
+                let max = self
+                    .layout
+                    .lines
+                    .len()
+                    .saturating_sub(self.page_rows().max(1));
+                self.scroll = (self.scroll as isize)
+                    .saturating_add(n)
+                    .clamp(0, max as isize) as usize;
+                let top = self.scroll;
+                self.board_chunk = self
+                    .layout
+                    .chunk_line
+                    .partition_point(|&l| l <= top)
+                    .saturating_sub(1);
+            }
+        }
+    }
+
+    fn scroll_to_chunk(&mut self, chunk: usize) {
+        if let Some(&line) = self.layout.chunk_line.get(chunk) {
+            let max = self
+                .layout
+                .lines
+                .len()
+                .saturating_sub(self.page_rows().max(1));
+            self.scroll = line.saturating_sub(2).min(max);
+        }
+    }
+
+    /// Re-wrap the selected document when the plan, the document or the size changed. With
+    /// `keep_byte`, the line holding that byte stays at the top.
+    fn relayout(&mut self, keep_byte: Option<usize>) {
+        let doc = self.selected_doc();
+        // Nothing is drawn below the minimum size; wrapping to a sliver would only cost time.
+        if self.corpus.docs.is_empty() || render::too_small(self.size) {
+            return;
+        }
+        let width = render::board_text_width(self.size);
+        let same_doc = self.layout.doc == doc && !self.layout.lines.is_empty();
+        let keep = keep_byte.filter(|_| same_doc).or_else(|| {
+            (same_doc && self.layout.width != width)
+                .then(|| self.layout.lines.get(self.scroll).map(|l| l.bytes.start))
+                .flatten()
+        });
+        self.layout = build_layout(
+            &self.corpus.docs[doc].text,
+            &self.current.chunks[doc],
+            &self.oversize_of(doc),
+            width,
+        );
+        self.layout.doc = doc;
+        match keep {
+            Some(b) => {
+                self.scroll = self
+                    .layout
+                    .lines
+                    .partition_point(|l| l.bytes.start <= b)
+                    .saturating_sub(1);
+            }
+            None if same_doc => {}
+            None => self.scroll = 0,
+        }
+        let max = self.layout.lines.len().saturating_sub(1);
+        self.scroll = self.scroll.min(max);
+        let top = self.scroll;
+        self.board_chunk = self
+            .layout
+            .chunk_line
+            .partition_point(|&l| l <= top)
+            .saturating_sub(1);
+    }
+
+    fn submit_prompt(&mut self) {
+        let Mode::Prompt { kind, input } = std::mem::replace(&mut self.mode, Mode::Normal) else {
+            return;
+        };
+        let name = input.trim();
+        if name.is_empty() {
+            self.say("no file name given: nothing done".into(), true);
+            return;
+        }
+        let path = PathBuf::from(name);
+        match kind {
+            PromptKind::Save => {
+                if path.exists() {
+                    self.mode = Mode::ConfirmOverwrite { path };
+                } else {
+                    self.save(&path, false);
+                }
+            }
+            PromptKind::Load => self.load(&path),
+        }
+    }
+
+    /// Write the current plan as a profile.
+    fn save(&mut self, path: &Path, overwrite: bool) {
+        let mut p = self.current.plan.profile.clone();
+        if let Some(stem) = path.file_stem() {
+            p.name = stem.to_string_lossy().into_owned();
+        }
+        if p.about.is_empty() || p.about.starts_with("saved from kerf explore") {
+            p.about = format!("saved from kerf explore: {}", plan_name(&p));
+        }
+        match crate::output::write_atomic(path, p.to_toml().as_bytes(), overwrite) {
+            Ok(()) => self.say(
+                format!("saved {} (use it with kerf cut -p {0} …)", path.display()),
+                false,
+            ),
+            Err(e) => self.say(format!("not saved: {e}"), true),
+        }
+    }
+
+    /// Load a profile as the current plan; it must use the model the explorer runs.
+    fn load(&mut self, path: &Path) {
+        let p = match Profile::load(path) {
+            Ok(p) => p,
+            Err(e) => return self.say(e.to_string(), true),
+        };
+        let ours = std::fs::canonicalize(&self.info.dir).unwrap_or_else(|_| self.info.dir.clone());
+        let theirs = p.model_dir();
+        let theirs = std::fs::canonicalize(&theirs).unwrap_or(theirs);
+        if ours != theirs {
+            return self.say(
+                format!(
+                    "{} uses model {}, but this explorer runs {}: restart with --model to use it",
+                    path.display(),
+                    theirs.display(),
+                    ours.display()
+                ),
+                true,
+            );
+        }
+        let mut keep = p.clone();
+        keep.model.folder = self.current.plan.profile.model.folder.clone();
+        if self.apply(keep) {
+            self.say(format!("loaded {}", path.display()), false);
+        }
+    }
+}
+
+fn step_pane(p: Pane, by: isize) -> Pane {
+    let i = Pane::ALL.iter().position(|x| *x == p).unwrap_or(0) as isize;
+    let n = Pane::ALL.len() as isize;
+    Pane::ALL[((i + by).rem_euclid(n)) as usize]
+}
+
+/// The next value up or down a ladder of steps from `current` (which need not be on it).
+fn step(steps: &[usize], current: usize, up: bool) -> usize {
+    if up {
+        steps
+            .iter()
+            .copied()
+            .find(|&s| s > current)
+            .unwrap_or(current)
+    } else {
+        steps
+            .iter()
+            .rev()
+            .copied()
+            .find(|&s| s < current)
+            .unwrap_or(current)
+    }
+}
+
+fn largest_below(steps: &[usize], limit: usize) -> usize {
+    steps
+        .iter()
+        .rev()
+        .copied()
+        .find(|&s| s < limit)
+        .unwrap_or(0)
+}
+
+fn cycle<T: Copy + PartialEq>(all: &[T], current: T, forward: bool) -> T {
+    let i = all.iter().position(|x| *x == current).unwrap_or(0);
+    let n = all.len();
+    all[if forward {
+        (i + 1) % n
+    } else {
+        (i + n - 1) % n
+    }]
+}
+
+fn best_index(v: &[f32]) -> Option<usize> {
+    (!v.is_empty()).then(|| {
+        v.iter()
+            .enumerate()
+            .fold(0, |b, (i, &s)| if s > v[b] { i } else { b })
+    })
+}
+
+/// Cut the corpus under a plan and key every chunk for the cache.
+pub fn cut_state(corpus: &Corpus, counter: &TokenCounter, plan: ResolvedPlan) -> PlanState {
+    use rayon::prelude::*;
+    let chunks = engine::cut_corpus(corpus, &plan, counter);
+    let prefix = {
+        use std::hash::{Hash, Hasher};
+        let mut h = std::collections::hash_map::DefaultHasher::new();
+        plan.profile.cut.prefix.hash(&mut h);
+        h.finish()
+    };
+    let keys = chunks
+        .par_iter()
+        .enumerate()
+        .map(|(doc, cs)| {
+            cs.iter()
+                .map(|c| Ident::Chunk {
+                    prefix,
+                    doc: doc as u32,
+                    start: c.byte_range.start as u32,
+                    end: c.byte_range.end as u32,
+                })
+                .collect::<Vec<Ident>>()
+        })
+        .collect();
+    PlanState {
+        plan,
+        chunks,
+        keys,
+        scored: None,
+    }
+}
+
+/// Score a plan when every vector it needs is in memory.
+fn score_state(
+    st: &PlanState,
+    corpus: &Corpus,
+    refs: &[Reference],
+    vectors: &HashMap<(TokenPooling, Ident), Vec<f32>>,
+) -> Option<Scored> {
+    if refs.is_empty() {
+        return None;
+    }
+    let pooling = st.plan.profile.pool.tokens;
+    let ref_vecs: Vec<&[f32]> = (0..refs.len())
+        .map(|i| {
+            vectors
+                .get(&(pooling, Ident::Ref(i as u32)))
+                .map(Vec::as_slice)
+        })
+        .collect::<Option<_>>()?;
+    let chunk_vecs: Vec<Vec<&[f32]>> = st
+        .keys
+        .iter()
+        .map(|ks| {
+            ks.iter()
+                .map(|k| vectors.get(&(pooling, *k)).map(Vec::as_slice))
+                .collect::<Option<Vec<_>>>()
+        })
+        .collect::<Option<_>>()?;
+    let how = st.plan.profile.pool.chunks;
+    let temperature = st.plan.profile.pool.temperature;
+    let doc_vecs: Vec<Option<Vec<f32>>> = chunk_vecs
+        .iter()
+        .zip(&st.chunks)
+        .map(|(vs, cs)| pool::doc_vector(how, vs, &engine::new_tokens(cs), temperature))
+        .collect();
+    let mut ranking = Vec::with_capacity(refs.len());
+    let mut chunk_cos = Vec::with_capacity(refs.len());
+    for q in &ref_vecs {
+        let cos: Vec<Vec<f32>> = chunk_vecs
+            .iter()
+            .map(|vs| vs.iter().map(|v| pool::cosine(q, v)).collect())
+            .collect();
+        let mut scores: Vec<DocScore> = cos
+            .iter()
+            .enumerate()
+            .filter(|(_, c)| !c.is_empty())
+            .map(|(d, c)| {
+                let best_chunk = best_index(c).unwrap_or(0);
+                let score = match how {
+                    ChunkPooling::Best => c[best_chunk],
+                    ChunkPooling::Sum => c.iter().sum(),
+                    _ => doc_vecs[d].as_ref().map_or(0.0, |dv| pool::cosine(q, dv)),
+                };
+                DocScore {
+                    doc: d,
+                    score,
+                    best_chunk,
+                }
+            })
+            .collect();
+        // Ties by document id descending, as trec_eval and `kerf compare` order them.
+        scores.sort_by(|a, b| {
+            b.score
+                .total_cmp(&a.score)
+                .then_with(|| corpus.docs[b.doc].id.cmp(&corpus.docs[a.doc].id))
+        });
+        ranking.push(scores);
+        chunk_cos.push(cos);
+    }
+    let summary = engine::summarize(corpus, refs, &ranking);
+    Some(Scored {
+        ranking,
+        chunk_cos,
+        summary,
+    })
+}
+
+/// Wrap a document to `width` columns and mark, for every stretch of text, its chunk, overlap,
+/// oversize sentence and whether the plan sees it at all.
+pub fn build_layout(
+    text: &str,
+    chunks: &[Chunk],
+    oversize: &[Range<usize>],
+    width: usize,
+) -> BoardLayout {
+    let width = width.max(1);
+    let mut lines: Vec<Range<usize>> = Vec::new();
+    let mut start = 0;
+    for logical in text.split('\n') {
+        let end = start + logical.len();
+        wrap_line(text, start..end, width, &mut lines);
+        start = end + 1;
+    }
+    // Points where the drawing of the text may change.
+    let mut cuts: Vec<usize> = Vec::with_capacity(chunks.len() * 2 + oversize.len() * 2);
+    for c in chunks {
+        cuts.push(c.byte_range.start);
+        cuts.push(c.byte_range.end);
+    }
+    for r in oversize {
+        cuts.push(r.start);
+        cuts.push(r.end);
+    }
+    cuts.sort_unstable();
+    cuts.dedup();
+    let seen_end = chunks.last().map_or(0, |c| c.byte_range.end);
+    let mut k = 0; // first chunk ending after the position
+    let mut o = 0; // first oversize sentence ending after the position
+    let mut ci = 0; // cut pointer
+    let mut next_start = 0; // next chunk whose start is not yet placed on a line
+    let mut chunk_line = vec![0; chunks.len()];
+    let mut out = Vec::with_capacity(lines.len());
+    for (li, r) in lines.into_iter().enumerate() {
+        let mut segs = Vec::new();
+        let mut pos = r.start;
+        while ci < cuts.len() && cuts[ci] <= pos {
+            ci += 1;
+        }
+        while pos < r.end {
+            let end = cuts
+                .get(ci)
+                .copied()
+                .filter(|&c| c < r.end)
+                .unwrap_or(r.end);
+            while k < chunks.len() && chunks[k].byte_range.end <= pos {
+                k += 1;
+            }
+            while o < oversize.len() && oversize[o].end <= pos {
+                o += 1;
+            }
+            let inside = |c: &Chunk| c.byte_range.start <= pos && pos < c.byte_range.end;
+            let a = chunks.get(k).filter(|&c| inside(c));
+            let b = chunks.get(k + 1).filter(|&c| inside(c));
+            segs.push(Seg {
+                bytes: pos..end,
+                chunk: b.or(a).map(|c| c.index),
+                overlap: a.is_some() && b.is_some(),
+                unseen: pos >= seen_end,
+                oversize: oversize
+                    .get(o)
+                    .is_some_and(|s| s.start <= pos && pos < s.end),
+            });
+            pos = end;
+            if ci < cuts.len() && cuts[ci] <= pos {
+                ci += 1;
+            }
+        }
+        let first = next_start;
+        while next_start < chunks.len()
+            && chunks[next_start].byte_range.start < r.end.max(r.start + 1)
+        {
+            chunk_line[next_start] = li;
+            next_start += 1;
+        }
+        out.push(VisualLine {
+            bytes: r,
+            segs,
+            chunk_starts: first..next_start,
+        });
+    }
+    BoardLayout {
+        doc: 0,
+        width,
+        lines: out,
+        chunk_line,
+    }
+}
+
+/// Greedy word wrap of one logical line (counting characters as columns).
+fn wrap_line(text: &str, r: Range<usize>, width: usize, out: &mut Vec<Range<usize>>) {
+    let s = &text[r.clone()];
+    if s.is_empty() {
+        out.push(r.start..r.start);
+        return;
+    }
+    let mut line_start = 0;
+    let mut cols = 0;
+    let mut last_space: Option<usize> = None; // byte after a space in the current line
+    for (i, ch) in s.char_indices() {
+        if cols == width {
+            let brk = last_space.filter(|&b| b > line_start).unwrap_or(i);
+            out.push(r.start + line_start..r.start + brk);
+            cols = s[brk..i].chars().count();
+            line_start = brk;
+            last_space = None;
+        }
+        cols += 1;
+        if ch == ' ' || ch == '\t' {
+            last_space = Some(i + ch.len_utf8());
+        }
+    }
+    out.push(r.start + line_start..r.end);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cache::text_key;
+    use crate::corpus::Document;
+
+    fn demo_app(files: &[&str]) -> App {
+        let dir = crate::model::default_model_dir();
+        let (info, counter) =
+            crate::model::inspect(&dir).expect("model fetched (scripts/fetch-model)");
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-texts");
+        let docs = files
+            .iter()
+            .map(|f| Document {
+                id: f.to_string(),
+                origin: f.to_string(),
+                text: std::fs::read_to_string(root.join(f)).unwrap(),
+            })
+            .collect();
+        let corpus = Corpus::new(docs, &counter).unwrap();
+        let refs = crate::compare::refs::load(&root.join("references.toml"), None).unwrap();
+        let profile = Profile::load(
+            &Path::new(env!("CARGO_MANIFEST_DIR")).join("profiles/sentences-256.toml"),
+        )
+        .unwrap();
+        let plan = plan::resolve(&profile, &info, &counter, "t").unwrap();
+        App::new(AppInit {
+            corpus,
+            counter,
+            info,
+            model_label: "test".into(),
+            plan,
+            refs,
+            refs_origin: Some("references.toml".into()),
+            problems: vec![],
+            size: (120, 40),
+        })
+        .unwrap()
+    }
+
+    /// Answer every queued job with the hash embedder, as the worker would.
+    fn serve(app: &mut App) {
+        use crate::embed::{Embedder, HashEmbedder};
+        let e = HashEmbedder { dim: 32 };
+        loop {
+            let reqs = app.take_requests();
+            if reqs.is_empty() {
+                break;
+            }
+            for r in reqs {
+                if let Request::Embed(job) = r {
+                    let inputs: Vec<String> = job
+                        .texts
+                        .iter()
+                        .map(|t| format!("{}{t}", job.prefix))
+                        .collect();
+                    let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
+                    app.update(Action::Worker(Report::Done {
+                        id: job.id,
+                        pooling: job.pooling,
+                        keys: job.texts.iter().map(|t| text_key(&job.prefix, t)).collect(),
+                        vectors: e.embed(&refs).unwrap(),
+                        embedded: job.texts.len(),
+                    }));
+                }
+            }
+        }
+    }
+
+    const DOCS: [&str; 2] = [
+        "locomotive-manual-issue-6.md",
+        "fares-and-timetables-2032.md",
+    ];
+
+    #[test]
+    fn window_change_recuts() {
+        let mut app = demo_app(&DOCS);
+        assert_eq!(app.current.plan.window, 256);
+        let before = app.totals.chunks;
+        app.update(Action::WindowDown);
+        assert_eq!(app.current.plan.window, 192);
+        assert!(
+            app.totals.chunks > before,
+            "{} -> {}",
+            before,
+            app.totals.chunks
+        );
+        // Every chunk fits the new budget.
+        let budget = app.current.plan.budget();
+        assert!(app
+            .current
+            .chunks
+            .iter()
+            .flatten()
+            .all(|c| c.content_tokens <= budget));
+        for _ in 0..10 {
+            app.update(Action::WindowUp);
+        }
+        assert_eq!(app.current.plan.window, 512, "stops at the model limit");
+        assert!(app.totals.chunks < before);
+        assert!(app.totals.unseen_tokens < app.doc_tokens.iter().sum::<usize>());
+    }
+
+    #[test]
+    fn overlap_change_changes_chunk_count() {
+        let mut app = demo_app(&DOCS);
+        app.update(Action::BoundaryPrev); // sentence -> token
+        assert_eq!(app.current.plan.profile.cut.boundary, Boundary::Token);
+        let before = app.totals.chunks;
+        app.update(Action::OverlapUp);
+        app.update(Action::OverlapUp);
+        app.update(Action::OverlapUp);
+        assert_eq!(app.current.plan.profile.cut.overlap, 32);
+        assert!(
+            app.totals.chunks > before,
+            "{} -> {}",
+            before,
+            app.totals.chunks
+        );
+        assert!(app
+            .current
+            .chunks
+            .iter()
+            .flatten()
+            .any(|c| c.overlap_tokens > 0));
+        app.update(Action::OverlapDown);
+        assert_eq!(app.current.plan.profile.cut.overlap, 16);
+        // Head takes no overlap: it is refused with a message, the plan unchanged.
+        app.update(Action::BoundaryPrev);
+        assert_eq!(app.current.plan.profile.cut.boundary, Boundary::Head);
+        assert_eq!(app.current.plan.profile.cut.overlap, 0);
+        assert_eq!(app.totals.chunks, DOCS.len());
+        app.update(Action::OverlapUp);
+        assert!(app.status.as_ref().unwrap().error);
+        assert_eq!(app.current.plan.profile.cut.overlap, 0);
+        // Leaving head brings the overlap back.
+        app.update(Action::BoundaryNext);
+        assert_eq!(app.current.plan.profile.cut.overlap, 16);
+    }
+
+    #[test]
+    fn pin_and_baseline() {
+        let mut app = demo_app(&DOCS);
+        serve(&mut app);
+        assert!(app.current.scored.is_some() && app.baseline.scored.is_some());
+        assert_eq!(app.comparison().plan.profile.cut.boundary, Boundary::Head);
+        app.update(Action::WindowDown);
+        app.update(Action::Pin);
+        assert_eq!(app.comparison().plan.window, 192);
+        app.update(Action::WindowDown);
+        assert_eq!(app.current.plan.window, 128);
+        assert_eq!(app.comparison().plan.window, 192, "pinned plan stays put");
+        serve(&mut app);
+        assert!(app.comparison().scored.is_some());
+        app.update(Action::Unpin);
+        assert_eq!(app.comparison().plan.profile.name, "baseline-head-256");
+    }
+
+    #[test]
+    fn cached_vectors_are_reused() {
+        let mut app = demo_app(&DOCS);
+        serve(&mut app);
+        app.update(Action::WindowDown);
+        assert!(app
+            .take_requests()
+            .iter()
+            .any(|r| matches!(r, Request::Embed(_))));
+        app.update(Action::WindowUp);
+        // Back to a plan seen before: nothing to embed, scores at once.
+        assert!(!app
+            .take_requests()
+            .iter()
+            .any(|r| matches!(r, Request::Embed(_))));
+        assert!(app.current.scored.is_some());
+    }
+
+    #[test]
+    fn save_prompt_flow_and_overwrite_refusal() {
+        let dir = tempfile::tempdir().unwrap();
+        let target = dir.path().join("mine.toml");
+        let mut app = demo_app(&DOCS);
+        app.update(Action::OverlapUp);
+        app.update(Action::SavePrompt);
+        match &app.mode {
+            Mode::Prompt {
+                kind: PromptKind::Save,
+                input,
+            } => assert!(input.ends_with(".toml")),
+            m => panic!("{m:?}"),
+        }
+        // Replace the suggested name with ours.
+        for _ in 0..100 {
+            app.update(Action::PromptBackspace);
+        }
+        for c in target.display().to_string().chars() {
+            app.update(Action::PromptChar(c));
+        }
+        app.update(Action::PromptSubmit);
+        assert_eq!(app.mode, Mode::Normal);
+        let saved = Profile::load(&target).unwrap();
+        assert_eq!(saved.cut.overlap, 8);
+        assert_eq!(saved.name, "mine");
+        assert!(plan::resolve(&saved, &app.info, &app.counter, "saved").is_ok());
+        // Saving again asks first; "no" keeps the file, "yes" replaces it.
+        app.update(Action::OverlapUp);
+        app.update(Action::SavePrompt);
+        app.mode = Mode::Prompt {
+            kind: PromptKind::Save,
+            input: target.display().to_string(),
+        };
+        app.update(Action::PromptSubmit);
+        assert!(matches!(app.mode, Mode::ConfirmOverwrite { .. }));
+        app.update(Action::Confirm(false));
+        assert_eq!(Profile::load(&target).unwrap().cut.overlap, 8);
+        app.mode = Mode::Prompt {
+            kind: PromptKind::Save,
+            input: target.display().to_string(),
+        };
+        app.update(Action::PromptSubmit);
+        app.update(Action::Confirm(true));
+        assert_eq!(Profile::load(&target).unwrap().cut.overlap, 16);
+        // And loading it back gives the same plan.
+        app.update(Action::OverlapDown);
+        app.mode = Mode::Prompt {
+            kind: PromptKind::Load,
+            input: target.display().to_string(),
+        };
+        app.update(Action::PromptSubmit);
+        assert_eq!(app.current.plan.profile.cut.overlap, 16, "{:?}", app.status);
+    }
+
+    #[test]
+    fn layout_marks_chunks_overlap_and_unseen() {
+        let text = "alpha beta gamma delta\nepsilon zeta";
+        let mk = |i, r: Range<usize>| Chunk {
+            index: i,
+            byte_range: r,
+            token_range: 0..1,
+            content_tokens: 1,
+            overlap_tokens: 0,
+            sentence_range: 0..1,
+        };
+        let chunks = [mk(0, 0..16), mk(1, 11..22)];
+        let l = build_layout(text, &chunks, &[], 12);
+        let lines: Vec<&str> = l.lines.iter().map(|v| &text[v.bytes.clone()]).collect();
+        assert_eq!(lines, ["alpha beta ", "gamma delta", "epsilon zeta"]);
+        assert_eq!(l.chunk_line, [0, 1]);
+        let g = &l.lines[1].segs;
+        assert_eq!(&text[g[0].bytes.clone()], "gamma");
+        assert!(g[0].overlap && g[0].chunk == Some(1));
+        assert!(!g[1].overlap && g[1].chunk == Some(1));
+        assert!(l.lines[2]
+            .segs
+            .iter()
+            .all(|s| s.unseen && s.chunk.is_none()));
+    }
+}
