@@ -135,7 +135,10 @@ fn bf16_weights_cost_little_accuracy() {
         .fold(1.0f32, f32::min);
     println!("bf16: worst cosine to f32 {worst:.6}");
     assert!(worst >= 0.9995, "worst cosine {worst}");
-    assert!(worst < 1.0, "bf16 rounding changed nothing: the precision switch is not applied");
+    assert!(
+        worst < 1.0,
+        "bf16 rounding changed nothing: the precision switch is not applied"
+    );
 }
 
 #[test]

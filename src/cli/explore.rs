@@ -254,6 +254,7 @@ fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderF
         max_batch_tokens: a.encoder.batch_tokens,
         threads: a.encoder.threads,
         precision: loaded.plan.profile.pool.precision,
+        engine: a.encoder.engine,
     };
     let load = move |pooling: TokenPooling| -> Result<Arc<dyn Embedder>> {
         let opts = EmbedOptions {

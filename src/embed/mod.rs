@@ -5,7 +5,7 @@
 //! [`HashEmbedder`] and run for real with [`BertEmbedder`], a CPU forward pass over a
 //! BERT-family checkpoint (MiniLM, BGE-small, E5-small and GTE-small share the architecture).
 mod bert;
-pub mod kernels;
+pub use kerf_kernels as kernels;
 pub mod packed;
 
 pub use bert::BertEmbedder;

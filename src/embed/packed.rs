@@ -180,9 +180,7 @@ impl PackedModel {
                 let row = &mut hidden[(off + pos) * h..(off + pos + 1) * h];
                 let word = &e.word[id as usize * h..(id as usize + 1) * h];
                 let place = &e.position[pos * h..(pos + 1) * h];
-                for (((r, w), p), t) in row.iter_mut().zip(word).zip(place).zip(&e.token_type0) {
-                    *r = w + p + t;
-                }
+                kernels::sum3(row, word, place, &e.token_type0);
             }
         }
         let eps = self.dims.eps;
@@ -382,9 +380,7 @@ pub fn pool_tokens(rows: &[f32], hidden: usize, pooling: TokenPooling) -> Vec<f3
         TokenPooling::Mean => {
             let mut acc = vec![0f32; hidden];
             for r in rows.chunks_exact(hidden) {
-                for (a, v) in acc.iter_mut().zip(r) {
-                    *a += v;
-                }
+                kernels::add_into(&mut acc, r);
             }
             acc.iter_mut().for_each(|a| *a /= len as f32);
             acc
@@ -392,9 +388,7 @@ pub fn pool_tokens(rows: &[f32], hidden: usize, pooling: TokenPooling) -> Vec<f3
         TokenPooling::Max => {
             let mut acc = vec![f32::NEG_INFINITY; hidden];
             for r in rows.chunks_exact(hidden) {
-                for (a, v) in acc.iter_mut().zip(r) {
-                    *a = a.max(*v);
-                }
+                kernels::max_into(&mut acc, r);
             }
             acc
         }

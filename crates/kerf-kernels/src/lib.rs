@@ -1,4 +1,4 @@
-//! Numerical kernels of the packed encoder.
+//! Numerical kernels of kerf's packed encoder.
 //!
 //! Matrix products go through the `gemm` crate (the same CPU kernels candle uses, called
 //! directly so no tensor is copied or transposed). The row-wise steps between them (bias, GELU,
@@ -207,6 +207,30 @@ fn lane_max(xs: &[f32]) -> f32 {
         .iter()
         .fold(f32::NEG_INFINITY, |a, &b| a.max(b));
     acc.iter().fold(tail, |a, &b| a.max(b))
+}
+
+/// `dst = a + b + c`, element by element (the embedding sum).
+#[multiversion(targets("x86_64+avx2+fma"))]
+pub fn sum3(dst: &mut [f32], a: &[f32], b: &[f32], c: &[f32]) {
+    for (((d, x), y), z) in dst.iter_mut().zip(a).zip(b).zip(c) {
+        *d = x + y + z;
+    }
+}
+
+/// `acc += row`, element by element.
+#[multiversion(targets("x86_64+avx2+fma"))]
+pub fn add_into(acc: &mut [f32], row: &[f32]) {
+    for (a, v) in acc.iter_mut().zip(row) {
+        *a += v;
+    }
+}
+
+/// `acc = max(acc, row)`, element by element.
+#[multiversion(targets("x86_64+avx2+fma"))]
+pub fn max_into(acc: &mut [f32], row: &[f32]) {
+    for (a, v) in acc.iter_mut().zip(row) {
+        *a = a.max(*v);
+    }
 }
 
 /// Add `bias` to every row of `x` (rows of `bias.len()`).
