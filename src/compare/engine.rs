@@ -117,36 +117,56 @@ pub fn score_all(
         .collect();
     refs.par_iter()
         .map(|q| {
-            let mut scores: Vec<DocScore> = chunk_vectors
+            let cos: Vec<Vec<f32>> = chunk_vectors
                 .iter()
-                .enumerate()
-                .filter(|(_, vs)| !vs.is_empty())
-                .map(|(d, vs)| {
-                    let cos: Vec<f32> = vs.iter().map(|v| pool::cosine(q, v)).collect();
-                    let best_chunk = cos
-                        .iter()
-                        .enumerate()
-                        .fold(0, |b, (i, &s)| if s > cos[b] { i } else { b });
-                    let score = match how {
-                        ChunkPooling::Best => cos[best_chunk],
-                        ChunkPooling::Sum => cos.iter().sum(),
-                        _ => doc_vecs[d].as_ref().map_or(0.0, |dv| pool::cosine(q, dv)),
-                    };
-                    DocScore {
-                        doc: d,
-                        score,
-                        best_chunk,
-                    }
-                })
+                .map(|vs| vs.iter().map(|v| pool::cosine(q, v)).collect())
                 .collect();
-            scores.sort_by(|a, b| {
-                b.score
-                    .total_cmp(&a.score)
-                    .then_with(|| corpus.docs[b.doc].id.cmp(&corpus.docs[a.doc].id))
-            });
-            scores
+            rank_documents(corpus, q, &cos, &doc_vecs, how)
         })
         .collect()
+}
+
+/// Index of the highest cosine (the first on ties); 0 for an empty list.
+pub fn best_chunk(cos: &[f32]) -> usize {
+    cos.iter()
+        .enumerate()
+        .fold(0, |b, (i, &s)| if s > cos[b] { i } else { b })
+}
+
+/// One reference's ranking of the documents, best first (ties by document id descending, as
+/// trec_eval orders them), from its cosine to every chunk (`chunk_cos[doc][chunk]`) and the
+/// documents' pooled vectors. Documents without chunks are left out.
+pub fn rank_documents(
+    corpus: &Corpus,
+    q: &[f32],
+    chunk_cos: &[Vec<f32>],
+    doc_vecs: &[Option<Vec<f32>>],
+    how: ChunkPooling,
+) -> Vec<DocScore> {
+    let mut scores: Vec<DocScore> = chunk_cos
+        .iter()
+        .enumerate()
+        .filter(|(_, cos)| !cos.is_empty())
+        .map(|(d, cos)| {
+            let best_chunk = best_chunk(cos);
+            let score = match how {
+                ChunkPooling::Best => cos[best_chunk],
+                ChunkPooling::Sum => cos.iter().sum(),
+                _ => doc_vecs[d].as_ref().map_or(0.0, |dv| pool::cosine(q, dv)),
+            };
+            DocScore {
+                doc: d,
+                score,
+                best_chunk,
+            }
+        })
+        .collect();
+    scores.sort_by(|a, b| {
+        b.score
+            .total_cmp(&a.score)
+            .then_with(|| corpus.docs[b.doc].id.cmp(&corpus.docs[a.doc].id))
+    });
+    scores
 }
 
 /// Ranking metrics of a plan over the references that name expected documents.

@@ -469,7 +469,7 @@ impl App {
         let s = self.current.scored.as_ref()?;
         let doc = self.selected_doc();
         let cos = s.chunk_cos.get(self.reference)?.get(doc)?;
-        best_index(cos)
+        (!cos.is_empty()).then(|| engine::best_chunk(cos))
     }
 
     /// Apply one action.
@@ -504,17 +504,11 @@ impl App {
             }
             Action::BoundaryNext | Action::BoundaryPrev => {
                 let mut p = self.current.plan.profile.clone();
-                let i = Boundary::ALL
-                    .iter()
-                    .position(|b| *b == p.cut.boundary)
-                    .unwrap_or(0);
-                let n = Boundary::ALL.len();
-                let j = if matches!(action, Action::BoundaryNext) {
-                    (i + 1) % n
-                } else {
-                    (i + n - 1) % n
-                };
-                let next = Boundary::ALL[j];
+                let next = cycle(
+                    &Boundary::ALL,
+                    p.cut.boundary,
+                    matches!(action, Action::BoundaryNext),
+                );
                 if next == Boundary::Head {
                     self.stashed_overlap = p.cut.overlap;
                     p.cut.overlap = 0;
@@ -1187,14 +1181,6 @@ fn cycle<T: Copy + PartialEq>(all: &[T], current: T, forward: bool) -> T {
     }]
 }
 
-fn best_index(v: &[f32]) -> Option<usize> {
-    (!v.is_empty()).then(|| {
-        v.iter()
-            .enumerate()
-            .fold(0, |b, (i, &s)| if s > v[b] { i } else { b })
-    })
-}
-
 /// Cut the corpus under a plan and key every chunk for the cache.
 pub fn cut_state(corpus: &Corpus, counter: &TokenCounter, plan: ResolvedPlan) -> PlanState {
     use rayon::prelude::*;
@@ -1268,30 +1254,7 @@ fn score_state(
             .iter()
             .map(|vs| vs.iter().map(|v| pool::cosine(q, v)).collect())
             .collect();
-        let mut scores: Vec<DocScore> = cos
-            .iter()
-            .enumerate()
-            .filter(|(_, c)| !c.is_empty())
-            .map(|(d, c)| {
-                let best_chunk = best_index(c).unwrap_or(0);
-                let score = match how {
-                    ChunkPooling::Best => c[best_chunk],
-                    ChunkPooling::Sum => c.iter().sum(),
-                    _ => doc_vecs[d].as_ref().map_or(0.0, |dv| pool::cosine(q, dv)),
-                };
-                DocScore {
-                    doc: d,
-                    score,
-                    best_chunk,
-                }
-            })
-            .collect();
-        // Ties by document id descending, as trec_eval and `kerf compare` order them.
-        scores.sort_by(|a, b| {
-            b.score
-                .total_cmp(&a.score)
-                .then_with(|| corpus.docs[b.doc].id.cmp(&corpus.docs[a.doc].id))
-        });
+        let scores = engine::rank_documents(corpus, q, &cos, &doc_vecs, how);
         ranking.push(scores);
         chunk_cos.push(cos);
     }
