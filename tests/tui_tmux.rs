@@ -14,6 +14,32 @@ struct Session {
 }
 
 impl Session {
+    /// A detached 140x45 tmux session on its own socket running `cmd` in `cwd`.
+    fn start(socket: &str, cwd: &std::path::Path, cmd: &str) -> Self {
+        let s = Session {
+            socket: socket.to_string(),
+        };
+        let out = s.tmux(&[
+            "new-session",
+            "-d",
+            "-x",
+            "140",
+            "-y",
+            "45",
+            "-s",
+            "kerf",
+            "-c",
+            cwd.to_str().unwrap(),
+            cmd,
+        ]);
+        assert!(
+            out.status.success(),
+            "tmux new-session: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        s
+    }
+
     fn tmux(&self, args: &[&str]) -> std::process::Output {
         Command::new("tmux")
             .arg("-L")
@@ -96,26 +122,10 @@ fn explore_in_tmux_changes_plan_and_saves_a_profile() {
         demo.join("references.toml").display(),
         corpus.display()
     );
-    let s = Session {
-        socket: format!("kerf-test-{}", std::process::id()),
-    };
-    let out = s.tmux(&[
-        "new-session",
-        "-d",
-        "-x",
-        "140",
-        "-y",
-        "45",
-        "-s",
-        "kerf",
-        "-c",
-        dir.path().to_str().unwrap(),
+    let s = Session::start(
+        &format!("kerf-test-{}", std::process::id()),
+        dir.path(),
         &cmd,
-    ]);
-    assert!(
-        out.status.success(),
-        "tmux new-session: {}",
-        String::from_utf8_lossy(&out.stderr)
     );
     let start = s.wait_for("window 256");
     assert!(header(&start).contains("overlap 0"), "{start}");
@@ -212,26 +222,10 @@ fn a_panic_restores_the_terminal() {
         env!("CARGO_BIN_EXE_kerf"),
         demo.display()
     );
-    let s = Session {
-        socket: format!("kerf-test-panic-{}", std::process::id()),
-    };
-    let out = s.tmux(&[
-        "new-session",
-        "-d",
-        "-x",
-        "140",
-        "-y",
-        "45",
-        "-s",
-        "kerf",
-        "-c",
-        dir.path().to_str().unwrap(),
+    let s = Session::start(
+        &format!("kerf-test-panic-{}", std::process::id()),
+        dir.path(),
         &cmd,
-    ]);
-    assert!(
-        out.status.success(),
-        "tmux new-session: {}",
-        String::from_utf8_lossy(&out.stderr)
     );
     let end = s.wait_for("TTY-");
     assert!(
