@@ -9,7 +9,9 @@
 //! the layouts these products want.
 use rayon::prelude::*;
 
-use super::kernels::{self, View};
+use super::kernels;
+use super::kernels::attention::{attend, Scratch};
+use super::kernels::sgemm::{matmul_packed, Epilogue, PackedRhs, Rows};
 use super::{Precision, TokenPooling};
 
 /// Sizes of a BERT encoder, from config.json.
@@ -31,22 +33,16 @@ pub struct Dims {
     pub eps: f32,
 }
 
-/// A dense layer `y = x W^T + b` with `W` stored `[out, in]` as PyTorch saves it.
+/// A dense layer `y = x W^T + b`, its weight packed once for the blocked product.
 pub struct Linear {
-    /// Weights, `[out, in]` row-major.
-    pub weight: Vec<f32>,
+    /// `W^T` (PyTorch stores `W` as `[out, in]`) in the product's panel layout.
+    pub weight: PackedRhs,
     /// Bias, `[out]`.
     pub bias: Vec<f32>,
     /// Input width.
     pub inputs: usize,
     /// Output width.
     pub outputs: usize,
-}
-
-impl Linear {
-    fn rhs(&self) -> View<'_> {
-        View::transposed(&self.weight, self.outputs, self.inputs)
-    }
 }
 
 /// LayerNorm parameters.
@@ -103,9 +99,7 @@ impl PackedModel {
         if precision == Precision::Bf16 {
             for l in &mut self.layers {
                 for lin in [&mut l.qkv, &mut l.attn_out, &mut l.up, &mut l.down] {
-                    lin.weight
-                        .iter_mut()
-                        .for_each(|w| *w = half::bf16::from_f32(*w).to_f32());
+                    lin.weight.map_weights(|w| half::bf16::from_f32(w).to_f32());
                 }
             }
         }
@@ -142,13 +136,16 @@ impl PackedModel {
         let mut inter = vec![0f32; total * d.intermediate];
         for layer in &self.layers {
             // Fused query/key/value projection over every token of the batch.
-            dense(&mut qkv, &hidden, &layer.qkv, threads);
-            par_rows(&mut qkv, 3 * h, |rows| {
-                kernels::add_bias(rows, &layer.qkv.bias)
-            });
+            dense(
+                &mut qkv,
+                &hidden,
+                &layer.qkv,
+                Epilogue::Bias(&layer.qkv.bias),
+                threads,
+            );
             self.attention(&qkv, seqs, &offsets, &mut ctx_heads);
             interleave_heads(&ctx_heads, &mut ctx, total, d.heads, h / d.heads);
-            dense(&mut update, &ctx, &layer.attn_out, threads);
+            dense(&mut update, &ctx, &layer.attn_out, Epilogue::Plain, threads);
             residual_norm(
                 &mut hidden,
                 &update,
@@ -156,11 +153,14 @@ impl PackedModel {
                 &layer.attn_norm,
                 d.eps,
             );
-            dense(&mut inter, &hidden, &layer.up, threads);
-            par_rows(&mut inter, d.intermediate, |rows| {
-                kernels::add_bias_gelu(rows, &layer.up.bias)
-            });
-            dense(&mut update, &inter, &layer.down, threads);
+            dense(
+                &mut inter,
+                &hidden,
+                &layer.up,
+                Epilogue::BiasGelu(&layer.up.bias),
+                threads,
+            );
+            dense(&mut update, &inter, &layer.down, Epilogue::Plain, threads);
             residual_norm(
                 &mut hidden,
                 &update,
@@ -211,35 +211,12 @@ impl PackedModel {
         tasks.sort_by_key(|t| std::cmp::Reverse(seqs[t.1].len()));
         tasks
             .into_par_iter()
-            .for_each_init(Vec::new, |scores, (head, s, dst)| {
+            .for_each_init(Scratch::default, |scratch, (head, s, dst)| {
                 let len = seqs[s].len();
                 let base = offsets[s] * 3 * h;
-                let q = View {
-                    data: &qkv[base + head * hd..],
-                    rows: len,
-                    cols: hd,
-                    row_stride: 3 * h,
-                    col_stride: 1,
-                };
-                // K^T read in place: element (c, j) is key j's component c.
-                let kt = View {
-                    data: &qkv[base + h + head * hd..],
-                    rows: hd,
-                    cols: len,
-                    row_stride: 1,
-                    col_stride: 3 * h,
-                };
-                let v = View {
-                    data: &qkv[base + 2 * h + head * hd..],
-                    rows: len,
-                    cols: hd,
-                    row_stride: 3 * h,
-                    col_stride: 1,
-                };
-                scores.resize(len * len, 0.0);
-                kernels::matmul(scores, len, q, kt, scale, false, 1);
-                kernels::softmax_rows(scores, len);
-                kernels::matmul(dst, hd, View::rows(scores, len, len), v, 1.0, false, 1);
+                // Part 0, 1, 2 (query, key, value) of this head: `hd` columns of each fused row.
+                let part = |p: usize| Rows::new(&qkv[base + p * h + head * hd..], len, hd, 3 * h);
+                attend(dst, part(0), part(1), part(2), scale, scratch);
             });
     }
 }
@@ -276,8 +253,16 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
         })
     };
     let linear = |pre: &str, inputs: usize, outputs: usize| -> Result<Linear, String> {
+        let weight = get(&format!("{pre}.weight"))?;
+        if weight.len() != inputs * outputs {
+            return Err(format!(
+                "tensor `{pre}.weight` has {} values, expected {}",
+                weight.len(),
+                inputs * outputs
+            ));
+        }
         Ok(Linear {
-            weight: get(&format!("{pre}.weight"))?,
+            weight: PackedRhs::from_linear_weight(&weight, outputs, inputs),
             bias: get(&format!("{pre}.bias"))?,
             inputs,
             outputs,
@@ -300,14 +285,24 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
     let mut layers = Vec::with_capacity(dims.layers);
     for l in 0..dims.layers {
         let pre = format!("encoder.layer.{l}");
-        let (q, k, v) = (
-            linear(&format!("{pre}.attention.self.query"), h, h)?,
-            linear(&format!("{pre}.attention.self.key"), h, h)?,
-            linear(&format!("{pre}.attention.self.value"), h, h)?,
-        );
+        // Query, key and value stacked as one [3h, h] weight: one product instead of three.
+        let self_attn = |part: &str| -> Result<(Vec<f32>, Vec<f32>), String> {
+            let name = format!("{pre}.attention.self.{part}");
+            let (w, b) = (
+                get(&format!("{name}.weight"))?,
+                get(&format!("{name}.bias"))?,
+            );
+            if w.len() != h * h || b.len() != h {
+                return Err(format!(
+                    "tensor `{name}` does not have {h}x{h} weights and {h} biases"
+                ));
+            }
+            Ok((w, b))
+        };
+        let (q, k, v) = (self_attn("query")?, self_attn("key")?, self_attn("value")?);
         let qkv = Linear {
-            weight: [q.weight, k.weight, v.weight].concat(),
-            bias: [q.bias, k.bias, v.bias].concat(),
+            weight: PackedRhs::from_linear_weight(&[q.0, k.0, v.0].concat(), 3 * h, h),
+            bias: [q.1, k.1, v.1].concat(),
             inputs: h,
             outputs: 3 * h,
         };
@@ -327,18 +322,9 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
     })
 }
 
-/// `out = x W^T` over all rows of `x` (bias added by the caller's fused step).
-fn dense(out: &mut [f32], x: &[f32], layer: &Linear, threads: usize) {
-    let rows = x.len() / layer.inputs;
-    kernels::matmul(
-        out,
-        layer.outputs,
-        View::rows(x, rows, layer.inputs),
-        layer.rhs(),
-        1.0,
-        false,
-        threads,
-    );
+/// `out = epilogue(x W^T)` over all rows of `x`.
+fn dense(out: &mut [f32], x: &[f32], layer: &Linear, epilogue: Epilogue<'_>, threads: usize) {
+    matmul_packed(out, x, &layer.weight, epilogue, threads);
 }
 
 fn par_rows(x: &mut [f32], width: usize, f: impl Fn(&mut [f32]) + Sync) {

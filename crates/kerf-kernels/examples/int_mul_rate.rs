@@ -1,0 +1,103 @@
+//! Does an integer product pay on this CPU? Peak multiply-accumulate rates of the three AVX2
+//! instruction forms an int8 or int16 matrix product would be built on, against fp32 fused
+//! multiply-adds, each as twelve independent accumulator chains on one thread with no memory
+//! traffic (the same shape as `fma_peak`):
+//! - `vfmadd231ps`: 8 fp32 products a instruction;
+//! - `vpmaddwd` + `vpaddd`: 16 int16 products (pairs summed into int32);
+//! - `vpmaddubsw` + `vpaddw`: 32 u8 x i8 products (pairs summed into saturating int16; a real
+//!   product must also widen to int32 with a further `vpmaddwd` on the same multiplier).
+//!
+//! notes/encoder-speed.md records what it printed and why kerf ships no int8 path on AVX2.
+//! The intrinsics need `unsafe` (the functions are compiled for AVX2 and must only be called
+//! where the CPU has it, which `main` checks first); this is a measuring tool, not library code.
+//!
+//! Usage: cargo run --release -p kerf-kernels --example int_mul_rate
+#[cfg(target_arch = "x86_64")]
+mod probe {
+    use std::arch::x86_64::*;
+
+    pub const STEPS: usize = 50_000_000;
+
+    #[target_feature(enable = "avx2,fma")]
+    pub unsafe fn f32_fma() -> f32 {
+        let mut acc = [_mm256_set1_ps(1.0); 12];
+        let b = _mm256_set1_ps(1.000_000_1);
+        let c = _mm256_set1_ps(1e-7);
+        for _ in 0..STEPS {
+            for a in acc.iter_mut() {
+                *a = _mm256_fmadd_ps(*a, b, c);
+            }
+        }
+        let lanes: [[f32; 8]; 12] = std::mem::transmute(acc);
+        lanes.iter().flatten().sum()
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn i16_madd() -> i32 {
+        let mut acc = [_mm256_set1_epi32(1); 12];
+        let (b0, b1) = (_mm256_set1_epi16(3), _mm256_set1_epi16(5));
+        let mut x = _mm256_set1_epi32(1);
+        for _ in 0..STEPS {
+            for r in 0..6 {
+                acc[2 * r] = _mm256_add_epi32(acc[2 * r], _mm256_madd_epi16(x, b0));
+                acc[2 * r + 1] = _mm256_add_epi32(acc[2 * r + 1], _mm256_madd_epi16(x, b1));
+            }
+            x = _mm256_add_epi32(x, b0);
+        }
+        let lanes: [[i32; 8]; 12] = std::mem::transmute(acc);
+        lanes.iter().flatten().fold(0, |s, v| s.wrapping_add(*v))
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn u8_maddubs() -> i32 {
+        let mut acc = [_mm256_set1_epi16(1); 12];
+        let (b0, b1) = (_mm256_set1_epi8(3), _mm256_set1_epi8(5));
+        let mut x = _mm256_set1_epi8(1);
+        for _ in 0..STEPS {
+            for r in 0..6 {
+                acc[2 * r] = _mm256_add_epi16(acc[2 * r], _mm256_maddubs_epi16(x, b0));
+                acc[2 * r + 1] = _mm256_add_epi16(acc[2 * r + 1], _mm256_maddubs_epi16(x, b1));
+            }
+            x = _mm256_add_epi8(x, b0);
+        }
+        let lanes: [[i16; 16]; 12] = std::mem::transmute(acc);
+        lanes
+            .iter()
+            .flatten()
+            .fold(0i32, |s, v| s.wrapping_add(*v as i32))
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+fn main() {
+    use std::time::Instant;
+    if !(is_x86_feature_detected!("avx2") && is_x86_feature_detected!("fma")) {
+        println!("this CPU has no AVX2+FMA: nothing to measure");
+        return;
+    }
+    let rate = |products_per_step: usize, f: &dyn Fn() -> f64| {
+        (0..3)
+            .map(|_| {
+                let t = Instant::now();
+                std::hint::black_box(f());
+                (probe::STEPS * products_per_step) as f64 / t.elapsed().as_secs_f64() / 1e9
+            })
+            .fold(0f64, f64::max)
+    };
+    // SAFETY (all three calls): AVX2 and FMA were detected above.
+    let fma = rate(12 * 8, &|| unsafe { probe::f32_fma() } as f64);
+    let madd = rate(12 * 16, &|| unsafe { probe::i16_madd() } as f64);
+    let maddubs = rate(12 * 32, &|| unsafe { probe::u8_maddubs() } as f64);
+    println!("one thread, billions of multiply-accumulates a second (best of three):");
+    println!("fp32 vfmadd231ps    {fma:6.1}  1.00x");
+    println!("int16 vpmaddwd      {madd:6.1}  {:.2}x", madd / fma);
+    println!(
+        "u8xi8 vpmaddubsw    {maddubs:6.1}  {:.2}x (saturating int16, before widening)",
+        maddubs / fma
+    );
+}
+
+#[cfg(not(target_arch = "x86_64"))]
+fn main() {
+    println!("x86-64 only");
+}

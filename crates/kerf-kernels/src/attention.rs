@@ -1,0 +1,142 @@
+//! Scaled dot-product attention for one sequence and one head, on the packed product.
+//!
+//! A BERT layer's attention is, per head, `softmax(Q K^T / sqrt(d)) V` over one sequence's
+//! rows. Both products here go through the same register-tiled kernel as the projections
+//! ([`crate::sgemm`]): the head's keys are packed as the right-hand side of `Q K^T` (with the
+//! scale folded in while packing, so no pass over the scores is spent on it) and its values as
+//! the right-hand side of `P V`. Packing is linear in the sequence length while the products
+//! are quadratic, and the scratch space is reused from call to call, so a worker thread
+//! allocates only when it meets a longer sequence than before.
+use crate::sgemm::{matmul_packed_strided, Epilogue, PackedRhs, Rows};
+
+/// Reusable buffers for [`attend`]: the packed keys and values and the score matrix.
+#[derive(Debug, Default)]
+pub struct Scratch {
+    keys: PackedRhs,
+    values: PackedRhs,
+    scores: Vec<f32>,
+}
+
+/// `dst = softmax(scale * q k^T) v` for one head of one sequence: `q`, `k` and `v` are
+/// `len x d` row sets (read in place, e.g. a head's columns of the fused query/key/value
+/// rows); `dst` is dense row-major `len x d`. Runs on the calling thread.
+///
+/// Panics when the three row sets differ in shape or `dst` is not `len x d`.
+pub fn attend(
+    dst: &mut [f32],
+    q: Rows<'_>,
+    k: Rows<'_>,
+    v: Rows<'_>,
+    scale: f32,
+    scratch: &mut Scratch,
+) {
+    let (len, d) = (q.rows(), q.cols());
+    assert!(
+        (k.rows(), k.cols()) == (len, d) && (v.rows(), v.cols()) == (len, d),
+        "query, key and value shapes differ"
+    );
+    assert_eq!(dst.len(), len * d, "destination shape");
+    if len == 0 || d == 0 {
+        return;
+    }
+    // K^T (d x len), scaled: element (p, j) is key j's component p.
+    scratch.keys.repack(d, len, |p, j| k.at(j, p) * scale);
+    scratch.scores.resize(len * len, 0.0);
+    matmul_packed_strided(&mut scratch.scores, q, &scratch.keys, Epilogue::Plain, 1);
+    crate::softmax_rows(&mut scratch.scores, len);
+    scratch.values.repack(len, d, |p, j| v.at(p, j));
+    let p = Rows::new(&scratch.scores, len, len, len);
+    matmul_packed_strided(dst, p, &scratch.values, Epilogue::Plain, 1);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn data(len: usize, seed: u32) -> Vec<f32> {
+        // Numerical Recipes' linear congruential generator, values in [-1, 1).
+        let mut s = seed;
+        (0..len)
+            .map(|_| {
+                s = s.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+                (s >> 8) as f32 / (1u32 << 23) as f32 - 1.0
+            })
+            .collect()
+    }
+
+    /// Attention from its definition (Vaswani et al. 2017, eq. 1), in f64.
+    fn by_definition(
+        q: &[f64],
+        k: &[f64],
+        v: &[f64],
+        len: usize,
+        d: usize,
+        scale: f64,
+    ) -> Vec<f64> {
+        let mut out = vec![0f64; len * d];
+        for i in 0..len {
+            let s: Vec<f64> = (0..len)
+                .map(|j| scale * (0..d).map(|c| q[i * d + c] * k[j * d + c]).sum::<f64>())
+                .collect();
+            let top = s.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+            let e: Vec<f64> = s.iter().map(|x| (x - top).exp()).collect();
+            let z: f64 = e.iter().sum();
+            for c in 0..d {
+                out[i * d + c] = (0..len).map(|j| e[j] / z * v[j * d + c]).sum();
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn one_head_read_in_place_matches_the_definition() {
+        // Two heads of width 8 inside fused rows [q | k | v] of width 3 * 16, lengths around
+        // the tile edges (6 rows, 16 columns).
+        let (heads, d) = (2, 8);
+        let width = 3 * heads * d;
+        let mut scratch = Scratch::default();
+        for len in [1, 5, 6, 7, 17, 40] {
+            let fused: Vec<f32> = data(len * width, len as u32)
+                .iter()
+                .map(|x| 3.0 * x)
+                .collect();
+            for head in 0..heads {
+                let at = |part: usize| {
+                    let start = part * heads * d + head * d;
+                    Rows::new(&fused[start..], len, d, width)
+                };
+                let mut got = vec![f32::NAN; len * d];
+                let scale = 1.0 / (d as f32).sqrt();
+                attend(&mut got, at(0), at(1), at(2), scale, &mut scratch);
+                let pick = |part: usize| -> Vec<f64> {
+                    (0..len * d)
+                        .map(|x| {
+                            fused[(x / d) * width + part * heads * d + head * d + x % d] as f64
+                        })
+                        .collect()
+                };
+                let want = by_definition(&pick(0), &pick(1), &pick(2), len, d, scale as f64);
+                for (g, w) in got.iter().zip(&want) {
+                    assert!(
+                        (*g as f64 - w).abs() < 1e-5,
+                        "len {len} head {head}: {g} vs {w}"
+                    );
+                }
+            }
+        }
+    }
+
+    #[test]
+    #[should_panic(expected = "shapes differ")]
+    fn refuses_keys_of_another_length() {
+        let x = [0f32; 12];
+        attend(
+            &mut [0.0; 4],
+            Rows::new(&x, 2, 2, 2),
+            Rows::new(&x, 3, 2, 2),
+            Rows::new(&x, 2, 2, 2),
+            1.0,
+            &mut Scratch::default(),
+        );
+    }
+}

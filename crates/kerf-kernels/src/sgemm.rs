@@ -1,0 +1,456 @@
+//! Products of activations with a fixed weight matrix packed once at load time.
+//!
+//! The layout and loop order are the published BLIS design (Van Zee & van de Geijn, "BLIS: A
+//! Framework for Rapidly Instantiating BLAS Functionality", ACM TOMS 2015): the weight matrix
+//! `B` (inner `k` by `n` outputs) is cut into blocks of `KC` inner rows and, inside each block,
+//! into panels of `NR` = 16 columns stored contiguously, so the micro-kernel streams one panel
+//! from L1 cache. For every `MC`-row block of the activations `A`, the rows are packed into
+//! `MR` = 6-row slivers, k-major, so the micro-kernel reads six broadcasts per step. The
+//! micro-kernel keeps a 6x16 tile of `C` in twelve 8-wide registers: twelve fused
+//! multiply-adds per two panel loads, which is what lets the product run near the CPU's peak
+//! rate where a general-purpose product that packs `B` on every call (and knows nothing of
+//! the model's shapes) reaches about half of it on this machine (notes/encoder-speed.md).
+//!
+//! Everything here is safe Rust: the micro-kernel is plain loops over fixed-size arrays that
+//! `multiversion` compiles for AVX2+FMA, where LLVM turns them into register-resident FMAs.
+use multiversion::multiversion;
+use rayon::prelude::*;
+
+/// Rows of the register tile.
+pub const MR: usize = 6;
+/// Columns of the register tile (two 8-wide vectors).
+pub const NR: usize = 16;
+/// Inner-dimension block: one `KC x NR` weight panel (16 KiB) stays in L1 while a block of
+/// activation slivers passes under it.
+const KC: usize = 256;
+/// Activation rows packed per block (`MC x KC` floats, 72 KiB, live in L2).
+const MC: usize = 72;
+
+/// A weight matrix `B` (`k x n`) in the blocked panel layout described in the module docs,
+/// columns padded with zeros to a multiple of [`NR`].
+#[derive(Clone, Debug, Default)]
+pub struct PackedRhs {
+    k: usize,
+    n: usize,
+    n_padded: usize,
+    data: Vec<f32>,
+}
+
+impl PackedRhs {
+    /// Pack the transpose of a PyTorch `Linear` weight stored row-major as `[outputs, inputs]`,
+    /// so `x * packed` is `x W^T`.
+    ///
+    /// Panics when `weight.len() != outputs * inputs`.
+    pub fn from_linear_weight(weight: &[f32], outputs: usize, inputs: usize) -> Self {
+        assert_eq!(weight.len(), outputs * inputs, "weight shape");
+        Self::pack(inputs, outputs, |kk, j| weight[j * inputs + kk])
+    }
+
+    /// Pack a row-major `k x n` matrix.
+    ///
+    /// Panics when `b.len() != k * n`.
+    pub fn from_rows(b: &[f32], k: usize, n: usize) -> Self {
+        assert_eq!(b.len(), k * n, "matrix shape");
+        Self::pack(k, n, |kk, j| b[kk * n + j])
+    }
+
+    fn pack(k: usize, n: usize, at: impl Fn(usize, usize) -> f32) -> Self {
+        let mut packed = Self {
+            k: 0,
+            n: 0,
+            n_padded: 0,
+            data: Vec::new(),
+        };
+        packed.repack(k, n, at);
+        packed
+    }
+
+    /// Refill with the `k x n` matrix whose element `(p, j)` is `at(p, j)`, reusing the
+    /// allocation (attention packs each head's keys and values this way).
+    pub fn repack(&mut self, k: usize, n: usize, at: impl Fn(usize, usize) -> f32) {
+        let n_padded = n.div_ceil(NR) * NR;
+        let data = &mut self.data;
+        data.clear();
+        data.resize(k * n_padded, 0.0);
+        let mut pos = 0;
+        for pc in (0..k).step_by(KC) {
+            let kc = KC.min(k - pc);
+            for jr in (0..n_padded).step_by(NR) {
+                for kk in pc..pc + kc {
+                    for j in jr..jr + NR {
+                        if j < n {
+                            data[pos] = at(kk, j);
+                        }
+                        pos += 1;
+                    }
+                }
+            }
+        }
+        debug_assert_eq!(pos, data.len());
+        self.k = k;
+        self.n = n;
+        self.n_padded = n_padded;
+    }
+
+    /// Inner dimension.
+    pub fn inner(&self) -> usize {
+        self.k
+    }
+
+    /// Output columns.
+    pub fn outputs(&self) -> usize {
+        self.n
+    }
+
+    /// Apply `f` to every stored weight (padding stays zero if `f(0) == 0`), e.g. to round the
+    /// weights to a narrower type.
+    pub fn map_weights(&mut self, f: impl Fn(f32) -> f32) {
+        for w in &mut self.data {
+            *w = f(*w);
+        }
+    }
+
+    /// The `KC x NR` panel `jr / NR` of the block starting at inner row `pc`.
+    fn panel(&self, pc: usize, kc: usize, jr: usize) -> &[f32] {
+        let start = pc * self.n_padded + jr * kc;
+        &self.data[start..start + kc * NR]
+    }
+}
+
+/// What happens to each output element after the product.
+#[derive(Clone, Copy, Debug)]
+pub enum Epilogue<'a> {
+    /// `C = A B`.
+    Plain,
+    /// `C = A B + bias` (bias per output column).
+    Bias(&'a [f32]),
+    /// `C = gelu(A B + bias)`.
+    BiasGelu(&'a [f32]),
+}
+
+/// `dst = epilogue(a * rhs)` where `a` is row-major `m x rhs.inner()` and `dst` row-major
+/// `m x rhs.outputs()`. With `threads > 1` the rows are shared out over the current rayon pool.
+///
+/// Panics when the slices do not have those shapes or a bias has the wrong length.
+pub fn matmul_packed(
+    dst: &mut [f32],
+    a: &[f32],
+    rhs: &PackedRhs,
+    epilogue: Epilogue<'_>,
+    threads: usize,
+) {
+    let k = rhs.k;
+    assert!(k > 0, "empty inner dimension");
+    assert_eq!(a.len() % k, 0, "activation rows");
+    matmul_packed_strided(dst, Rows::new(a, a.len() / k, k, k), rhs, epilogue, threads);
+}
+
+/// Rows of activations inside a slice: row `r` is `data[r * stride..r * stride + cols]`, so
+/// the columns of a wider matrix (one attention head's share of the query/key/value rows)
+/// can be read in place.
+#[derive(Clone, Copy, Debug)]
+pub struct Rows<'a> {
+    data: &'a [f32],
+    rows: usize,
+    cols: usize,
+    stride: usize,
+}
+
+impl<'a> Rows<'a> {
+    /// `rows` rows of `cols` values, `stride` apart, starting at `data[0]`.
+    ///
+    /// Panics when the last row does not fit in `data` or `cols > stride` (rows would overlap).
+    pub fn new(data: &'a [f32], rows: usize, cols: usize, stride: usize) -> Self {
+        assert!(cols <= stride || rows <= 1, "rows overlap");
+        assert!(
+            rows == 0 || (rows - 1) * stride + cols <= data.len(),
+            "rows outside their slice"
+        );
+        Self {
+            data,
+            rows,
+            cols,
+            stride,
+        }
+    }
+
+    /// Number of rows.
+    pub fn rows(&self) -> usize {
+        self.rows
+    }
+
+    /// Values per row.
+    pub fn cols(&self) -> usize {
+        self.cols
+    }
+
+    /// Element `(r, c)`.
+    pub fn at(&self, r: usize, c: usize) -> f32 {
+        debug_assert!(r < self.rows && c < self.cols);
+        self.data[r * self.stride + c]
+    }
+
+    fn row(&self, r: usize, from: usize, len: usize) -> &'a [f32] {
+        let start = r * self.stride + from;
+        &self.data[start..start + len]
+    }
+}
+
+/// [`matmul_packed`] for activations read through [`Rows`]; `dst` is dense row-major.
+///
+/// Panics when `a.cols != rhs.inner()`, `dst` is not `a.rows x rhs.outputs()` or a bias has
+/// the wrong length.
+pub fn matmul_packed_strided(
+    dst: &mut [f32],
+    a: Rows<'_>,
+    rhs: &PackedRhs,
+    epilogue: Epilogue<'_>,
+    threads: usize,
+) {
+    let (k, n, m) = (rhs.k, rhs.n, a.rows);
+    assert!(k > 0, "empty inner dimension");
+    assert_eq!(
+        a.cols, k,
+        "activation width differs from the inner dimension"
+    );
+    assert_eq!(dst.len(), m * n, "destination shape");
+    if let Epilogue::Bias(b) | Epilogue::BiasGelu(b) = epilogue {
+        assert_eq!(b.len(), n, "bias length");
+    }
+    if m == 0 || n == 0 {
+        return;
+    }
+    // Blocks of MC rows (whole MR slivers, so only the last block has a ragged sliver), handed
+    // out to the pool's threads as they come free: a core slowed by other work on the machine
+    // takes fewer blocks instead of holding the other one up at the end.
+    if threads <= 1 {
+        let mut slivers = Vec::new();
+        for (b, d) in dst.chunks_mut(MC * n).enumerate() {
+            matmul_block(d, a, b * MC, rhs, epilogue, &mut slivers);
+        }
+    } else {
+        dst.par_chunks_mut(MC * n)
+            .enumerate()
+            .for_each_init(Vec::new, |slivers, (b, d)| {
+                matmul_block(d, a, b * MC, rhs, epilogue, slivers)
+            });
+    }
+}
+
+/// One block of at most `MC` rows of `a` from row `first` on, into `dst` (dense, as many rows
+/// as it holds). The block's rows are first copied into `slivers` (scratch), `MR` rows at a
+/// time, k-major and zero-padded to whole slivers, so the tile kernel reads its six values a
+/// step from one contiguous stream in L1 instead of six rows a matrix width apart. Compiled
+/// for AVX2+FMA as a whole, so the tile kernel is inlined into the loops and the run-time
+/// choice of instructions is made once a block, not once a tile (a tile of attention scores is
+/// only 32 inner steps long, where a call per tile cost a quarter of the time).
+#[multiversion(targets("x86_64+avx2+fma"))]
+fn matmul_block<'a>(
+    dst: &mut [f32],
+    a: Rows<'a>,
+    first: usize,
+    rhs: &PackedRhs,
+    epilogue: Epilogue<'a>,
+    slivers: &mut Vec<f32>,
+) {
+    let (k, n) = (rhs.k, rhs.n);
+    let mc = dst.len() / n;
+    let whole = mc.div_ceil(MR);
+    for pc in (0..k).step_by(KC) {
+        let kc = KC.min(k - pc);
+        pack_slivers(slivers, a, first, mc, pc, kc);
+        for jr in (0..n).step_by(NR) {
+            let panel = rhs.panel(pc, kc, jr);
+            let cols = NR.min(n - jr);
+            for (s, sliver) in slivers.chunks_exact(MR * kc).take(whole).enumerate() {
+                let ir = s * MR;
+                let rows = MR.min(mc - ir);
+                let tile = tile_product(kc, sliver, panel);
+                let out = &mut dst[ir * n + jr..];
+                if rows == MR && cols == NR {
+                    store_tile(out, n, &tile, pc == 0);
+                } else {
+                    store_part_tile(out, n, rows, cols, &tile, pc == 0);
+                }
+            }
+        }
+    }
+    // The block's rows are finished and still in cache: apply the epilogue to them.
+    match epilogue {
+        Epilogue::Plain => {}
+        Epilogue::Bias(b) => crate::add_bias(dst, b),
+        Epilogue::BiasGelu(b) => crate::add_bias_gelu(dst, b),
+    }
+}
+
+/// Copy rows `first..first + mc`, columns `pc..pc + kc` of `a` into `MR`-row slivers, each
+/// k-major (`sliver[p * MR + r]` is row `r`'s value at inner step `p`); rows past `mc` in the
+/// last sliver are zeros.
+fn pack_slivers(out: &mut Vec<f32>, a: Rows<'_>, first: usize, mc: usize, pc: usize, kc: usize) {
+    let whole = mc.div_ceil(MR);
+    out.clear();
+    out.resize(whole * MR * kc, 0.0);
+    for (s, sliver) in out.chunks_exact_mut(MR * kc).enumerate() {
+        for r in 0..MR.min(mc - s * MR) {
+            let row = a.row(first + s * MR + r, pc, kc);
+            for (p, v) in row.iter().enumerate() {
+                sliver[p * MR + r] = *v;
+            }
+        }
+    }
+}
+
+/// The 6x16 register tile of a packed sliver times a panel over `kc` inner steps:
+/// `sliver[p * MR + r]` is row `r`'s value at step `p`, `panel[p * NR + j]` the weight for
+/// step `p` and column `j`. Plain loops over fixed-size arrays, which LLVM keeps in twelve
+/// 8-wide registers (one broadcast and two fused multiply-adds a row and step).
+#[inline(always)]
+fn tile_product(kc: usize, sliver: &[f32], panel: &[f32]) -> [[f32; NR]; MR] {
+    let mut acc = [[0f32; NR]; MR];
+    for (a, b) in sliver[..kc * MR]
+        .chunks_exact(MR)
+        .zip(panel[..kc * NR].chunks_exact(NR))
+    {
+        let a: &[f32; MR] = a.try_into().unwrap();
+        let b: &[f32; NR] = b.try_into().unwrap();
+        for r in 0..MR {
+            for j in 0..NR {
+                acc[r][j] = a[r].mul_add(b[j], acc[r][j]);
+            }
+        }
+    }
+    acc
+}
+
+/// A whole tile, written (`first` inner block) or added into `dst`, whose rows are `n` apart.
+#[inline(always)]
+fn store_tile(dst: &mut [f32], n: usize, tile: &[[f32; NR]; MR], first: bool) {
+    for (r, t) in tile.iter().enumerate() {
+        let out: &mut [f32; NR] = (&mut dst[r * n..r * n + NR]).try_into().unwrap();
+        if first {
+            *out = *t;
+        } else {
+            for j in 0..NR {
+                out[j] += t[j];
+            }
+        }
+    }
+}
+
+/// The ragged tiles at the bottom and right edges: only `rows x cols` of the tile is real.
+fn store_part_tile(
+    dst: &mut [f32],
+    n: usize,
+    rows: usize,
+    cols: usize,
+    tile: &[[f32; NR]; MR],
+    first: bool,
+) {
+    for (r, t) in tile.iter().enumerate().take(rows) {
+        let out = &mut dst[r * n..r * n + cols];
+        if first {
+            out.copy_from_slice(&t[..cols]);
+        } else {
+            for (o, v) in out.iter_mut().zip(t) {
+                *o += v;
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn data(len: usize, seed: u32) -> Vec<f32> {
+        // A small linear congruential generator (Numerical Recipes' constants), values in [-1, 1).
+        let mut s = seed;
+        (0..len)
+            .map(|_| {
+                s = s.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+                (s >> 8) as f32 / (1u32 << 23) as f32 - 1.0
+            })
+            .collect()
+    }
+
+    /// Schoolbook product in f64: the definition of the matrix product.
+    fn schoolbook(a: &[f32], b: &[f32], m: usize, k: usize, n: usize) -> Vec<f64> {
+        let mut c = vec![0f64; m * n];
+        for i in 0..m {
+            for j in 0..n {
+                c[i * n + j] = (0..k)
+                    .map(|p| a[i * k + p] as f64 * b[p * n + j] as f64)
+                    .sum();
+            }
+        }
+        c
+    }
+
+    #[test]
+    fn packed_product_matches_the_schoolbook_product_on_ragged_shapes() {
+        // Shapes straddle every block edge: rows not a multiple of MR or MC, inner sizes below,
+        // at and above KC, columns not a multiple of NR.
+        for &(m, k, n) in &[
+            (1, 1, 1),
+            (5, 7, 3),
+            (6, 256, 16),
+            (73, 257, 17),
+            (150, 600, 40),
+            (13, 384, 384),
+            (7, 2100, 20),
+        ] {
+            let a = data(m * k, 1 + m as u32);
+            let b = data(k * n, 2 + n as u32);
+            let want = schoolbook(&a, &b, m, k, n);
+            for threads in [1, 2, 3] {
+                let mut got = vec![f32::NAN; m * n];
+                matmul_packed(
+                    &mut got,
+                    &a,
+                    &PackedRhs::from_rows(&b, k, n),
+                    Epilogue::Plain,
+                    threads,
+                );
+                for (g, w) in got.iter().zip(&want) {
+                    // f32 accumulation over k terms of size <= 1: error well under k * 2^-24.
+                    assert!(
+                        (*g as f64 - w).abs() < 1e-5 * k as f64,
+                        "{m}x{k}x{n}: {g} vs {w}"
+                    );
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn linear_weight_packing_is_the_transpose_and_epilogues_apply_bias_and_gelu() {
+        let (m, k, n) = (9, 300, 20);
+        let x = data(m * k, 3);
+        let w = data(n * k, 4); // [outputs, inputs]
+        let bias = data(n, 5);
+        let mut wt = vec![0f32; k * n];
+        for j in 0..n {
+            for p in 0..k {
+                wt[p * n + j] = w[j * k + p];
+            }
+        }
+        let want = schoolbook(&x, &wt, m, k, n);
+        let rhs = PackedRhs::from_linear_weight(&w, n, k);
+        let mut biased = vec![0f32; m * n];
+        matmul_packed(&mut biased, &x, &rhs, Epilogue::Bias(&bias), 2);
+        let mut gelud = vec![0f32; m * n];
+        matmul_packed(&mut gelud, &x, &rhs, Epilogue::BiasGelu(&bias), 2);
+        for i in 0..m * n {
+            let z = want[i] + bias[i % n] as f64;
+            assert!((biased[i] as f64 - z).abs() < 1e-4);
+            assert!((gelud[i] - crate::gelu(z as f32)).abs() < 1e-4);
+        }
+    }
+
+    #[test]
+    #[should_panic(expected = "destination shape")]
+    fn refuses_a_destination_of_the_wrong_size() {
+        let rhs = PackedRhs::from_rows(&[1.0; 6], 2, 3);
+        matmul_packed(&mut [0.0; 5], &[1.0; 4], &rhs, Epilogue::Plain, 1);
+    }
+}
