@@ -45,14 +45,14 @@ pub fn exp(x: f32) -> f32 {
 /// exponential and one division, so GELU costs a dozen fused multiply-adds per element.
 #[inline(always)]
 pub fn erf(x: f32) -> f32 {
-    let x = x.clamp(-3.832_506_9, 3.832_506_9);
+    let x = x.clamp(-3.832_507, 3.832_507);
     let x2 = x * x;
     let p = (-2.726_142_3e-10f32)
         .mul_add(x2, 2.770_681_4e-8)
         .mul_add(x2, -2.101_024e-6)
         .mul_add(x2, -5.692_506_4e-5)
         .mul_add(x2, -7.349_906_3e-4)
-        .mul_add(x2, -2.954_600e-3)
+        .mul_add(x2, -2.9546e-3)
         .mul_add(x2, -1.609_603_3e-2);
     let q = (-1.456_607_2e-5f32)
         .mul_add(x2, -2.133_740_6e-4)

@@ -1,15 +1,15 @@
 //! Products of activations with a fixed weight matrix packed once at load time.
 //!
-//! The layout and loop order are the published BLIS design (Van Zee & van de Geijn, "BLIS: A
-//! Framework for Rapidly Instantiating BLAS Functionality", ACM TOMS 2015): the weight matrix
-//! `B` (inner `k` by `n` outputs) is cut into blocks of `KC` inner rows and, inside each block,
-//! into panels of `NR` = 16 columns stored contiguously, so the micro-kernel streams one panel
-//! from L1 cache. For every `MC`-row block of the activations `A`, the rows are packed into
-//! `MR` = 6-row slivers, k-major, so the micro-kernel reads six broadcasts per step. The
-//! micro-kernel keeps a 6x16 tile of `C` in twelve 8-wide registers: twelve fused
-//! multiply-adds per two panel loads, which is what lets the product run near the CPU's peak
-//! rate where a general-purpose product that packs `B` on every call (and knows nothing of
-//! the model's shapes) reaches about half of it on this machine (notes/encoder-speed.md).
+//! The register tile and the weight layout follow the published BLIS design (Van Zee & van de
+//! Geijn, "BLIS: A Framework for Rapidly Instantiating BLAS Functionality", ACM TOMS 2015): the
+//! weight matrix `B` (inner `k` by `n` outputs) is stored as panels of `NR` = 16 columns, each
+//! contiguous and k-major, so the micro-kernel streams one panel. The activations `A` are cut
+//! into blocks of `MC` rows (one thread's unit of work) and each block into `MR` = 6-row
+//! slivers, read in place. The micro-kernel keeps a 6x16 tile of `C` in twelve 8-wide
+//! registers: twelve fused multiply-adds per two panel loads and six broadcasts. Packing `B`
+//! once, at load, instead of on every call as a general-purpose product must, and applying the
+//! bias (and GELU) to each block while it is in cache, is what lifted the encoder from 70% to
+//! over 80% of PyTorch's own matrix-product rate (notes/encoder-speed.md).
 //!
 //! Everything here is safe Rust: the micro-kernel is plain loops over fixed-size arrays that
 //! `multiversion` compiles for AVX2+FMA, where LLVM turns them into register-resident FMAs.
@@ -20,10 +20,11 @@ use rayon::prelude::*;
 pub const MR: usize = 6;
 /// Columns of the register tile (two 8-wide vectors).
 pub const NR: usize = 16;
-/// Inner-dimension block: one `KC x NR` weight panel (16 KiB) stays in L1 while a block of
-/// activation slivers passes under it.
-const KC: usize = 256;
-/// Activation rows packed per block (`MC x KC` floats, 72 KiB, live in L2).
+/// Inner-dimension block. MiniLM's inner sizes (384 and 1,536) fit in one; blocks of 256 (a
+/// weight panel in L1) measured no faster on the encoder (notes/encoder-speed.md, step 7).
+const KC: usize = 2048;
+/// Activation rows per block: the unit of work handed to a thread, and the rows that pass
+/// under each weight panel while it is in cache.
 const MC: usize = 72;
 
 /// A weight matrix `B` (`k x n`) in the blocked panel layout described in the module docs,
@@ -224,26 +225,28 @@ pub fn matmul_packed_strided(
     // out to the pool's threads as they come free: a core slowed by other work on the machine
     // takes fewer blocks instead of holding the other one up at the end.
     if threads <= 1 {
-        let mut slivers = Vec::new();
+        let mut ragged = Vec::new();
         for (b, d) in dst.chunks_mut(MC * n).enumerate() {
-            matmul_block(d, a, b * MC, rhs, epilogue, &mut slivers);
+            matmul_block(d, a, b * MC, rhs, epilogue, &mut ragged);
         }
     } else {
         dst.par_chunks_mut(MC * n)
             .enumerate()
-            .for_each_init(Vec::new, |slivers, (b, d)| {
-                matmul_block(d, a, b * MC, rhs, epilogue, slivers)
+            .for_each_init(Vec::new, |ragged, (b, d)| {
+                matmul_block(d, a, b * MC, rhs, epilogue, ragged)
             });
     }
 }
 
 /// One block of at most `MC` rows of `a` from row `first` on, into `dst` (dense, as many rows
-/// as it holds). The block's rows are first copied into `slivers` (scratch), `MR` rows at a
-/// time, k-major and zero-padded to whole slivers, so the tile kernel reads its six values a
-/// step from one contiguous stream in L1 instead of six rows a matrix width apart. Compiled
-/// for AVX2+FMA as a whole, so the tile kernel is inlined into the loops and the run-time
-/// choice of instructions is made once a block, not once a tile (a tile of attention scores is
-/// only 32 inner steps long, where a call per tile cost a quarter of the time).
+/// as it holds). The tile kernel reads each sliver's `MR` rows in place as six streams; only a
+/// last sliver of fewer than `MR` rows is copied, into zero-padded rows of `ragged` (scratch).
+/// (Copying every sliver into one k-major stream, as BLIS does, measured no faster here and
+/// cost 6% of the encoder's time in the copy.) The slivers' row slices are made once a block,
+/// not once a tile. Compiled for AVX2+FMA as a whole, so the tile kernel is inlined into the
+/// loops and the run-time choice of instructions is made once a block, not once a tile (a tile
+/// of attention scores is only 32 inner steps long, where a call per tile cost a quarter of
+/// the time).
 #[multiversion(targets("x86_64+avx2+fma"))]
 fn matmul_block<'a>(
     dst: &mut [f32],
@@ -251,26 +254,36 @@ fn matmul_block<'a>(
     first: usize,
     rhs: &PackedRhs,
     epilogue: Epilogue<'a>,
-    slivers: &mut Vec<f32>,
+    ragged: &mut Vec<f32>,
 ) {
     let (k, n) = (rhs.k, rhs.n);
     let mc = dst.len() / n;
-    let whole = mc.div_ceil(MR);
+    let full = mc / MR;
+    let tail = mc % MR;
     for pc in (0..k).step_by(KC) {
         let kc = KC.min(k - pc);
-        pack_slivers(slivers, a, first, mc, pc, kc);
+        ragged.clear();
+        ragged.resize(MR * kc, 0.0);
+        for r in 0..tail {
+            ragged[r * kc..(r + 1) * kc].copy_from_slice(a.row(first + full * MR + r, pc, kc));
+        }
+        let mut slivers: Vec<[&[f32]; MR]> = (0..full)
+            .map(|s| std::array::from_fn(|r| a.row(first + s * MR + r, pc, kc)))
+            .collect();
+        if tail > 0 {
+            slivers.push(std::array::from_fn(|r| &ragged[r * kc..(r + 1) * kc]));
+        }
         for jr in (0..n).step_by(NR) {
             let panel = rhs.panel(pc, kc, jr);
             let cols = NR.min(n - jr);
-            for (s, sliver) in slivers.chunks_exact(MR * kc).take(whole).enumerate() {
+            for (s, rows) in slivers.iter().enumerate() {
                 let ir = s * MR;
-                let rows = MR.min(mc - ir);
-                let tile = tile_product(kc, sliver, panel);
+                let tile = tile_product(kc, rows, panel);
                 let out = &mut dst[ir * n + jr..];
-                if rows == MR && cols == NR {
+                if ir + MR <= mc && cols == NR {
                     store_tile(out, n, &tile, pc == 0);
                 } else {
-                    store_part_tile(out, n, rows, cols, &tile, pc == 0);
+                    store_part_tile(out, n, MR.min(mc - ir), cols, &tile, pc == 0);
                 }
             }
         }
@@ -283,36 +296,25 @@ fn matmul_block<'a>(
     }
 }
 
-/// Copy rows `first..first + mc`, columns `pc..pc + kc` of `a` into `MR`-row slivers, each
-/// k-major (`sliver[p * MR + r]` is row `r`'s value at inner step `p`); rows past `mc` in the
-/// last sliver are zeros.
-fn pack_slivers(out: &mut Vec<f32>, a: Rows<'_>, first: usize, mc: usize, pc: usize, kc: usize) {
-    let whole = mc.div_ceil(MR);
-    out.clear();
-    out.resize(whole * MR * kc, 0.0);
-    for (s, sliver) in out.chunks_exact_mut(MR * kc).enumerate() {
-        for r in 0..MR.min(mc - s * MR) {
-            let row = a.row(first + s * MR + r, pc, kc);
-            for (p, v) in row.iter().enumerate() {
-                sliver[p * MR + r] = *v;
-            }
-        }
-    }
-}
-
-/// The 6x16 register tile of a packed sliver times a panel over `kc` inner steps:
-/// `sliver[p * MR + r]` is row `r`'s value at step `p`, `panel[p * NR + j]` the weight for
-/// step `p` and column `j`. Plain loops over fixed-size arrays, which LLVM keeps in twelve
-/// 8-wide registers (one broadcast and two fused multiply-adds a row and step).
+/// The 6x16 register tile of `rows * panel` over `kc` inner steps: `rows[r][p]` is row `r`'s
+/// value at step `p`, `panel[p * NR + j]` the weight for step `p` and column `j`. Plain loops
+/// over fixed-size arrays, which LLVM keeps in twelve 8-wide registers (one broadcast and two
+/// fused multiply-adds a row and step).
 #[inline(always)]
-fn tile_product(kc: usize, sliver: &[f32], panel: &[f32]) -> [[f32; NR]; MR] {
+fn tile_product(kc: usize, rows: &[&[f32]; MR], panel: &[f32]) -> [[f32; NR]; MR] {
     let mut acc = [[0f32; NR]; MR];
-    for (a, b) in sliver[..kc * MR]
-        .chunks_exact(MR)
-        .zip(panel[..kc * NR].chunks_exact(NR))
-    {
-        let a: &[f32; MR] = a.try_into().unwrap();
+    let [r0, r1, r2, r3, r4, r5] = *rows;
+    let steps = r0[..kc]
+        .iter()
+        .zip(&r1[..kc])
+        .zip(&r2[..kc])
+        .zip(&r3[..kc])
+        .zip(&r4[..kc])
+        .zip(&r5[..kc])
+        .zip(panel[..kc * NR].chunks_exact(NR));
+    for ((((((a0, a1), a2), a3), a4), a5), b) in steps {
         let b: &[f32; NR] = b.try_into().unwrap();
+        let a = [*a0, *a1, *a2, *a3, *a4, *a5];
         for r in 0..MR {
             for j in 0..NR {
                 acc[r][j] = a[r].mul_add(b[j], acc[r][j]);
