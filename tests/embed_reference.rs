@@ -117,6 +117,23 @@ fn packed_engine_agrees_with_stock_candle_for_every_token_pooling() {
 }
 
 #[test]
+fn int8_is_refused_with_the_reason() {
+    // No int8 kernel is built (notes/encoder-speed.md): asking for one must say so before any
+    // weights load, not fall back silently to f32.
+    let err = BertEmbedder::load(
+        &common::model_dir(),
+        &EmbedOptions {
+            precision: Precision::Int8,
+            ..Default::default()
+        },
+    )
+    .err()
+    .expect("int8 must be refused");
+    let msg = err.to_string();
+    assert!(msg.contains("int8") && msg.contains("f32"), "{msg}");
+}
+
+#[test]
 fn bf16_weights_cost_little_accuracy() {
     // Tolerance: bf16 keeps 8 bits of mantissa, so the measured worst cosine to the f32
     // vectors (0.999988 on this fixture, see notes/encoder-speed.md) is held at >= 0.9995.

@@ -52,17 +52,7 @@ pub fn attend(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn data(len: usize, seed: u32) -> Vec<f32> {
-        // Numerical Recipes' linear congruential generator, values in [-1, 1).
-        let mut s = seed;
-        (0..len)
-            .map(|_| {
-                s = s.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
-                (s >> 8) as f32 / (1u32 << 23) as f32 - 1.0
-            })
-            .collect()
-    }
+    use crate::testdata::data;
 
     /// Attention from its definition (Vaswani et al. 2017, eq. 1), in f64.
     fn by_definition(

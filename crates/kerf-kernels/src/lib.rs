@@ -202,19 +202,26 @@ pub fn residual_layer_norm(
     layer_norm(hidden, weight, ln_bias, eps);
 }
 
+/// Test inputs shared by the kernels' unit tests.
 #[cfg(test)]
-mod tests {
-    use super::*;
-
-    fn data(len: usize, seed: u32) -> Vec<f32> {
+pub(crate) mod testdata {
+    /// `len` values in [-1, 1) from a linear congruential generator (Numerical Recipes'
+    /// constants): reproducible without a dependency.
+    pub fn data(len: usize, seed: u32) -> Vec<f32> {
         let mut s = seed;
         (0..len)
             .map(|_| {
                 s = s.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
-                (s >> 8) as f32 / (1u32 << 24) as f32 - 0.5
+                (s >> 8) as f32 / (1u32 << 23) as f32 - 1.0
             })
             .collect()
     }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::testdata::data;
+    use super::*;
 
     #[test]
     fn exp_is_within_two_ulp_of_f64_exp() {

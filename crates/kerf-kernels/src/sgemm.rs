@@ -363,17 +363,7 @@ fn store_part_tile(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn data(len: usize, seed: u32) -> Vec<f32> {
-        // A small linear congruential generator (Numerical Recipes' constants), values in [-1, 1).
-        let mut s = seed;
-        (0..len)
-            .map(|_| {
-                s = s.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
-                (s >> 8) as f32 / (1u32 << 23) as f32 - 1.0
-            })
-            .collect()
-    }
+    use crate::testdata::data;
 
     /// Schoolbook product in f64: the definition of the matrix product.
     fn schoolbook(a: &[f32], b: &[f32], m: usize, k: usize, n: usize) -> Vec<f64> {
