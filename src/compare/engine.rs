@@ -224,88 +224,6 @@ pub fn rank_of(scores: &[DocScore], doc: usize) -> Option<usize> {
     scores.iter().position(|s| s.doc == doc).map(|p| p + 1)
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-    use crate::embed::{Embedder, HashEmbedder};
-
-    #[test]
-    fn scoring_with_a_hash_embedder_finds_the_matching_document() {
-        // Model-free: two chunks per document from a toy word tokenizer is not needed; use
-        // ready-made chunk vectors from the hash embedder.
-        let e = HashEmbedder { dim: 64 };
-        let docs = vec![
-            Document {
-                id: "boiler".into(),
-                origin: "t".into(),
-                text: String::new(),
-            },
-            Document {
-                id: "timetable".into(),
-                origin: "t".into(),
-                text: String::new(),
-            },
-        ];
-        let corpus = Corpus {
-            docs,
-            analyses: vec![],
-        };
-        let v = |t: &str| e.embed(&[t]).unwrap().remove(0);
-        let chunk_vectors = vec![
-            vec![
-                v("boiler tubes replaced"),
-                v("pressure test passed at 180 psi"),
-            ],
-            vec![
-                v("summer timetable trains every hour"),
-                v("fares for children"),
-            ],
-        ];
-        let mk = |n: usize| {
-            (0..n)
-                .map(|i| Chunk {
-                    index: i,
-                    byte_range: 0..0,
-                    token_range: 0..1,
-                    content_tokens: 10,
-                    overlap_tokens: 0,
-                    sentence_range: 0..0,
-                })
-                .collect::<Vec<_>>()
-        };
-        let chunks = vec![mk(2), mk(2)];
-        let q = vec![v("what pressure was the boiler test")];
-        // Per-dimension max of signed hash features is not a similarity-preserving summary, so
-        // it is left out of this check (it is covered by the pool module's own cases).
-        for how in ChunkPooling::ALL
-            .into_iter()
-            .filter(|h| *h != ChunkPooling::DimMax)
-        {
-            let s = score_all(&corpus, &q, &chunk_vectors, &chunks, how, 0.1);
-            assert_eq!(s[0][0].doc, 0, "{how:?}");
-        }
-        let s = score_all(
-            &corpus,
-            &q,
-            &chunk_vectors,
-            &chunks,
-            ChunkPooling::Best,
-            0.1,
-        );
-        assert_eq!(s[0][0].best_chunk, 1);
-        let refs = vec![Reference {
-            id: "q".into(),
-            text: "x".into(),
-            prefix: String::new(),
-            kind: "question".into(),
-            expect: [("boiler".to_string(), 1)].into(),
-        }];
-        assert_eq!(summarize(&corpus, &refs, &s).mrr_at_10, 1.0);
-        assert_eq!(rank_of(&s[0], 1), Some(2));
-        assert_eq!(tau_between(&s[0], &s[0]), 1.0);
-    }
-}
-
 /// Everything measured about one plan over a corpus and references.
 pub struct PlanEval {
     /// The plan.
@@ -426,5 +344,87 @@ pub fn score_plan(
         scores,
         input_tokens,
         embedded,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::embed::{Embedder, HashEmbedder};
+
+    #[test]
+    fn scoring_with_a_hash_embedder_finds_the_matching_document() {
+        // Model-free: two chunks per document from a toy word tokenizer is not needed; use
+        // ready-made chunk vectors from the hash embedder.
+        let e = HashEmbedder { dim: 64 };
+        let docs = vec![
+            Document {
+                id: "boiler".into(),
+                origin: "t".into(),
+                text: String::new(),
+            },
+            Document {
+                id: "timetable".into(),
+                origin: "t".into(),
+                text: String::new(),
+            },
+        ];
+        let corpus = Corpus {
+            docs,
+            analyses: vec![],
+        };
+        let v = |t: &str| e.embed(&[t]).unwrap().remove(0);
+        let chunk_vectors = vec![
+            vec![
+                v("boiler tubes replaced"),
+                v("pressure test passed at 180 psi"),
+            ],
+            vec![
+                v("summer timetable trains every hour"),
+                v("fares for children"),
+            ],
+        ];
+        let mk = |n: usize| {
+            (0..n)
+                .map(|i| Chunk {
+                    index: i,
+                    byte_range: 0..0,
+                    token_range: 0..1,
+                    content_tokens: 10,
+                    overlap_tokens: 0,
+                    sentence_range: 0..0,
+                })
+                .collect::<Vec<_>>()
+        };
+        let chunks = vec![mk(2), mk(2)];
+        let q = vec![v("what pressure was the boiler test")];
+        // Per-dimension max of signed hash features is not a similarity-preserving summary, so
+        // it is left out of this check (it is covered by the pool module's own cases).
+        for how in ChunkPooling::ALL
+            .into_iter()
+            .filter(|h| *h != ChunkPooling::DimMax)
+        {
+            let s = score_all(&corpus, &q, &chunk_vectors, &chunks, how, 0.1);
+            assert_eq!(s[0][0].doc, 0, "{how:?}");
+        }
+        let s = score_all(
+            &corpus,
+            &q,
+            &chunk_vectors,
+            &chunks,
+            ChunkPooling::Best,
+            0.1,
+        );
+        assert_eq!(s[0][0].best_chunk, 1);
+        let refs = vec![Reference {
+            id: "q".into(),
+            text: "x".into(),
+            prefix: String::new(),
+            kind: "question".into(),
+            expect: [("boiler".to_string(), 1)].into(),
+        }];
+        assert_eq!(summarize(&corpus, &refs, &s).mrr_at_10, 1.0);
+        assert_eq!(rank_of(&s[0], 1), Some(2));
+        assert_eq!(tau_between(&s[0], &s[0]), 1.0);
     }
 }

@@ -328,8 +328,7 @@ fn dense(out: &mut [f32], x: &[f32], layer: &Linear, epilogue: Epilogue<'_>, thr
 }
 
 fn par_rows(x: &mut [f32], width: usize, f: impl Fn(&mut [f32]) + Sync) {
-    x.par_chunks_mut(width * ROWS_PER_TASK)
-        .for_each(|rows| f(rows));
+    x.par_chunks_mut(width * ROWS_PER_TASK).for_each(&f);
 }
 
 fn residual_norm(hidden: &mut [f32], update: &[f32], bias: &[f32], norm: &Norm, eps: f32) {
