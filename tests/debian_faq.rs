@@ -14,8 +14,13 @@ use kerf::plan;
 use kerf::pool::ChunkPooling;
 use kerf::profile::{Boundary, Profile};
 
+/// Chapters as (number, text).
+type Chapters = Vec<(usize, String)>;
+/// Questions as (text, chapter number).
+type Questions = Vec<(String, usize)>;
+
 /// The parse rule of tests/reference/debian_faq.py, reimplemented.
-fn parse(text: &str) -> (Vec<(usize, String)>, Vec<(String, usize)>) {
+fn parse(text: &str) -> (Chapters, Questions) {
     let lines: Vec<&str> = text.split('\n').collect();
     let mut chapters: Vec<(usize, Vec<&str>)> = Vec::new();
     let mut questions = Vec::new();

@@ -51,9 +51,11 @@ pub struct CompareArgs {
 
 /// The truncation baseline: first window only, as an encoder does by default.
 pub fn baseline_profile(window: usize, folder: Option<PathBuf>) -> Profile {
-    let mut p = Profile::default();
-    p.name = format!("baseline-head-{window}");
-    p.about = "first window only: what a truncating encoder sees".into();
+    let mut p = Profile {
+        name: format!("baseline-head-{window}"),
+        about: "first window only: what a truncating encoder sees".into(),
+        ..Default::default()
+    };
     p.model.folder = folder;
     p.cut.window = window;
     p.cut.boundary = Boundary::Head;

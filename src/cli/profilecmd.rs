@@ -1,6 +1,6 @@
 //! `kerf profile check|show|new`.
 use std::io::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result};
 use clap::{Args, Subcommand};
@@ -75,7 +75,7 @@ fn parse_boundary(s: &str) -> Result<Boundary, String> {
     parse_enum(s)
 }
 
-fn resolve_file(file: &PathBuf) -> Result<(Profile, plan::ResolvedPlan)> {
+fn resolve_file(file: &Path) -> Result<(Profile, plan::ResolvedPlan)> {
     let p = Profile::load(file)?;
     let (info, counter) = model::inspect(&p.model_dir())?;
     let r = plan::resolve(&p, &info, &counter, &file.display().to_string())?;

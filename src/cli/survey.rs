@@ -51,12 +51,10 @@ pub struct SurveyArgs {
 fn sort_docs(docs: &mut [DocStats], order: Order) {
     match order {
         Order::Input => {}
-        Order::Tokens => docs.sort_by(|a, b| b.content_tokens.cmp(&a.content_tokens)),
-        Order::Unseen => docs.sort_by(|a, b| b.unseen_tokens.cmp(&a.unseen_tokens)),
+        Order::Tokens => docs.sort_by_key(|d| std::cmp::Reverse(d.content_tokens)),
+        Order::Unseen => docs.sort_by_key(|d| std::cmp::Reverse(d.unseen_tokens)),
         Order::Share => docs.sort_by(|a, b| b.unseen_share.total_cmp(&a.unseen_share)),
-        Order::Longest => {
-            docs.sort_by(|a, b| b.longest_sentence_tokens.cmp(&a.longest_sentence_tokens))
-        }
+        Order::Longest => docs.sort_by_key(|d| std::cmp::Reverse(d.longest_sentence_tokens)),
         Order::Id => docs.sort_by(|a, b| a.id.cmp(&b.id)),
     }
 }
@@ -204,8 +202,10 @@ fn write_human(
 pub fn run(a: SurveyArgs) -> Result<()> {
     let window = a.window;
     let loaded = load_plan(&a.plan, |info| {
-        let mut p = Profile::default();
-        p.name = "survey".into();
+        let mut p = Profile {
+            name: "survey".into(),
+            ..Default::default()
+        };
         p.cut.window = window.unwrap_or_else(|| info.default_window());
         p.cut.boundary = Boundary::Sentence;
         p
