@@ -40,11 +40,11 @@ pub fn attend(
         return;
     }
     // K^T (d x len), scaled: element (p, j) is key j's component p.
-    scratch.keys.repack(d, len, |p, j| k.at(j, p) * scale);
+    scratch.keys.repack_rows_transposed(k, scale);
     scratch.scores.resize(len * len, 0.0);
     matmul_packed_strided(&mut scratch.scores, q, &scratch.keys, Epilogue::Plain, 1);
     crate::softmax_rows(&mut scratch.scores, len);
-    scratch.values.repack(len, d, |p, j| v.at(p, j));
+    scratch.values.repack_rows(v, 1.0);
     let p = Rows::new(&scratch.scores, len, len, len);
     matmul_packed_strided(dst, p, &scratch.values, Epilogue::Plain, 1);
 }

@@ -67,12 +67,11 @@ impl PackedRhs {
     }
 
     /// Refill with the `k x n` matrix whose element `(p, j)` is `at(p, j)`, reusing the
-    /// allocation (attention packs each head's keys and values this way).
-    pub fn repack(&mut self, k: usize, n: usize, at: impl Fn(usize, usize) -> f32) {
-        let n_padded = n.div_ceil(NR) * NR;
+    /// allocation.
+    fn repack(&mut self, k: usize, n: usize, at: impl Fn(usize, usize) -> f32) {
+        self.reshape(k, n);
+        let n_padded = self.n_padded;
         let data = &mut self.data;
-        data.clear();
-        data.resize(k * n_padded, 0.0);
         let mut pos = 0;
         for pc in (0..k).step_by(KC) {
             let kc = KC.min(k - pc);
@@ -88,9 +87,56 @@ impl PackedRhs {
             }
         }
         debug_assert_eq!(pos, data.len());
+    }
+
+    /// Refill with `scale * src` (`src.rows() x src.cols()`), copying row pieces whole: the
+    /// values of one attention head as the right-hand side of `P V`.
+    pub fn repack_rows(&mut self, src: Rows<'_>, scale: f32) {
+        self.reshape(src.rows, src.cols);
+        let (k, n, n_padded) = (self.k, self.n, self.n_padded);
+        for pc in (0..k).step_by(KC) {
+            let kc = KC.min(k - pc);
+            for jr in (0..n_padded).step_by(NR) {
+                let cols = NR.min(n - jr);
+                let start = pc * n_padded + jr * kc;
+                let panel = &mut self.data[start..start + kc * NR];
+                for (p, out) in panel.chunks_exact_mut(NR).enumerate() {
+                    let row = src.row(pc + p, jr, cols);
+                    for (o, v) in out.iter_mut().zip(row) {
+                        *o = scale * v;
+                    }
+                }
+            }
+        }
+    }
+
+    /// Refill with `scale * src^T` (`src.cols() x src.rows()`), reading each source row once:
+    /// the keys of one attention head as the right-hand side of `Q K^T`.
+    pub fn repack_rows_transposed(&mut self, src: Rows<'_>, scale: f32) {
+        self.reshape(src.cols, src.rows);
+        let (k, n, n_padded) = (self.k, self.n, self.n_padded);
+        for pc in (0..k).step_by(KC) {
+            let kc = KC.min(k - pc);
+            for jr in (0..n_padded).step_by(NR) {
+                let start = pc * n_padded + jr * kc;
+                let panel = &mut self.data[start..start + kc * NR];
+                for j in 0..NR.min(n - jr) {
+                    let row = src.row(jr + j, pc, kc);
+                    for (p, v) in row.iter().enumerate() {
+                        panel[p * NR + j] = scale * v;
+                    }
+                }
+            }
+        }
+    }
+
+    /// Size for a `k x n` matrix, every value zero (padding columns must be).
+    fn reshape(&mut self, k: usize, n: usize) {
+        self.n_padded = n.div_ceil(NR) * NR;
         self.k = k;
         self.n = n;
-        self.n_padded = n_padded;
+        self.data.clear();
+        self.data.resize(k * self.n_padded, 0.0);
     }
 
     /// Inner dimension.
@@ -185,12 +231,6 @@ impl<'a> Rows<'a> {
         self.cols
     }
 
-    /// Element `(r, c)`.
-    pub fn at(&self, r: usize, c: usize) -> f32 {
-        debug_assert!(r < self.rows && c < self.cols);
-        self.data[r * self.stride + c]
-    }
-
     fn row(&self, r: usize, from: usize, len: usize) -> &'a [f32] {
         let start = r * self.stride + from;
         &self.data[start..start + len]
@@ -267,12 +307,15 @@ fn matmul_block<'a>(
         for r in 0..tail {
             ragged[r * kc..(r + 1) * kc].copy_from_slice(a.row(first + full * MR + r, pc, kc));
         }
-        let mut slivers: Vec<[&[f32]; MR]> = (0..full)
-            .map(|s| std::array::from_fn(|r| a.row(first + s * MR + r, pc, kc)))
-            .collect();
-        if tail > 0 {
-            slivers.push(std::array::from_fn(|r| &ragged[r * kc..(r + 1) * kc]));
+        // Row slices of every sliver, on the stack (a block has at most MC / MR + 1).
+        let mut slivers = [[&[] as &[f32]; MR]; MC / MR + 1];
+        for (s, sliver) in slivers.iter_mut().enumerate().take(full) {
+            *sliver = std::array::from_fn(|r| a.row(first + s * MR + r, pc, kc));
         }
+        if tail > 0 {
+            slivers[full] = std::array::from_fn(|r| &ragged[r * kc..(r + 1) * kc]);
+        }
+        let slivers = &slivers[..full + usize::from(tail > 0)];
         for jr in (0..n).step_by(NR) {
             let panel = rhs.panel(pc, kc, jr);
             let cols = NR.min(n - jr);
@@ -437,6 +480,28 @@ mod tests {
             assert!((biased[i] as f64 - z).abs() < 1e-4);
             assert!((gelud[i] - crate::gelu(z as f32)).abs() < 1e-4);
         }
+    }
+
+    #[test]
+    fn packing_from_rows_in_place_equals_packing_by_element() {
+        // Rows read in place from a wider matrix (stride 50), straight and transposed, scaled,
+        // must give the very layout the element-wise packers give.
+        let (k, n, stride) = (37, 21, 50);
+        let wide = data(k * stride, 9);
+        let dense: Vec<f32> = (0..k * n)
+            .map(|i| 2.0 * wide[(i / n) * stride + i % n])
+            .collect();
+        let mut got = PackedRhs::default();
+        got.repack_rows(Rows::new(&wide, k, n, stride), 2.0);
+        assert_eq!(got.data, PackedRhs::from_rows(&dense, k, n).data);
+        // Transposed: the source rows are the n outputs, each k long (a Linear weight).
+        let wide_t = data(n * stride, 10);
+        let w: Vec<f32> = (0..n * k)
+            .map(|i| 2.0 * wide_t[(i / k) * stride + i % k])
+            .collect();
+        got.repack_rows_transposed(Rows::new(&wide_t, n, k, stride), 2.0);
+        assert_eq!(got.data, PackedRhs::from_linear_weight(&w, n, k).data);
+        assert_eq!((got.inner(), got.outputs()), (k, n));
     }
 
     #[test]
