@@ -311,9 +311,9 @@ impl BertEmbedder {
         let rows = match &self.runner {
             Runner::Candle(model) => self.run_candle(model, ids)?,
             Runner::Packed(model) => {
-                // Both cores share each product (measured faster here than giving each core
-                // its own half of the inputs: notes/encoder-speed.md, step 2).
-                let hidden = model.forward(ids, self.threads);
+                // Each core runs its own share of the inputs (measured faster than sharing
+                // every product since the tiled product: notes/encoder-speed.md, step 10).
+                let hidden = model.forward_shared_out(ids, self.threads);
                 let mut out = Vec::with_capacity(ids.len());
                 let mut off = 0;
                 for s in ids {

@@ -172,6 +172,24 @@ impl PackedModel {
         hidden
     }
 
+    /// [`forward`](Self::forward) with the sequences cut into `threads` runs of about equal
+    /// token counts, each run's products on one thread and the runs in parallel: no thread
+    /// waits at the end of every product for the other, as it does when each product is
+    /// shared. Rows come back in input order and equal `forward`'s bit for bit: every row's
+    /// arithmetic is the same whichever run it is in.
+    pub fn forward_shared_out(&self, seqs: &[&[u32]], threads: usize) -> Vec<f32> {
+        let lens: Vec<usize> = seqs.iter().map(|s| s.len()).collect();
+        let runs = split_by_tokens(&lens, threads);
+        if runs.len() <= 1 {
+            return self.forward(seqs, threads);
+        }
+        let parts: Vec<Vec<f32>> = runs
+            .into_par_iter()
+            .map(|r| self.forward(&seqs[r], 1))
+            .collect();
+        parts.concat()
+    }
+
     fn embed_tokens(&self, seqs: &[&[u32]], offsets: &[usize], hidden: &mut [f32]) {
         let h = self.dims.hidden;
         let e = &self.embeddings;
@@ -322,6 +340,28 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
     })
 }
 
+/// Cut `lens` (tokens per sequence, in order) into at most `parts` contiguous non-empty runs
+/// whose token sums are as even as whole sequences allow: each run ends at the first
+/// sequence that takes it to its share of the total.
+pub fn split_by_tokens(lens: &[usize], parts: usize) -> Vec<std::ops::Range<usize>> {
+    let total: usize = lens.iter().sum();
+    let parts = parts.clamp(1, lens.len().max(1));
+    let mut runs = Vec::with_capacity(parts);
+    let (mut start, mut acc) = (0, 0);
+    for (i, len) in lens.iter().enumerate() {
+        acc += len;
+        // Run `runs.len()` closes once the running sum reaches its share of the total.
+        if runs.len() + 1 < parts && acc * parts >= total * (runs.len() + 1) {
+            runs.push(start..i + 1);
+            start = i + 1;
+        }
+    }
+    if start < lens.len() || runs.is_empty() {
+        runs.push(start..lens.len());
+    }
+    runs
+}
+
 /// `out = epilogue(x W^T)` over all rows of `x`.
 fn dense(out: &mut [f32], x: &[f32], layer: &Linear, epilogue: Epilogue<'_>, threads: usize) {
     matmul_packed(out, x, &layer.weight, epilogue, threads);
@@ -391,6 +431,36 @@ mod tests {
         let mut dst = vec![0f32; 12];
         interleave_heads(&src, &mut dst, 3, 2, 2);
         assert_eq!(dst, vec![0., 1., 6., 7., 2., 3., 8., 9., 4., 5., 10., 11.]);
+    }
+
+    #[test]
+    fn token_runs_cover_every_sequence_in_order_and_share_tokens_evenly() {
+        assert_eq!(split_by_tokens(&[5, 5, 5, 5], 2), vec![0..2, 2..4]);
+        assert_eq!(split_by_tokens(&[100, 1, 1, 1], 2), vec![0..1, 1..4]);
+        assert_eq!(split_by_tokens(&[7], 2), vec![0..1]);
+        assert_eq!(split_by_tokens(&[], 2), vec![0..0]);
+        assert_eq!(split_by_tokens(&[3, 4], 1), vec![0..2]);
+        // Many lengths: runs are contiguous, non-empty and cover everything; no run exceeds
+        // its even share by more than one sequence.
+        let lens: Vec<usize> = (0..97).map(|i| 20 + (i * 37) % 230).collect();
+        for parts in 1..6 {
+            let runs = split_by_tokens(&lens, parts);
+            assert!(runs.len() <= parts && !runs.is_empty());
+            assert_eq!(runs[0].start, 0);
+            assert_eq!(runs.last().unwrap().end, lens.len());
+            for w in runs.windows(2) {
+                assert_eq!(w[0].end, w[1].start);
+            }
+            let total: usize = lens.iter().sum();
+            for r in &runs {
+                assert!(!r.is_empty());
+                let sum: usize = lens[r.clone()].iter().sum();
+                assert!(
+                    sum <= total / parts + 250,
+                    "{parts} parts: run {r:?} has {sum}"
+                );
+            }
+        }
     }
 
     #[test]
