@@ -21,7 +21,7 @@ pub const MR: usize = 6;
 /// Columns of the register tile (two 8-wide vectors).
 pub const NR: usize = 16;
 /// Inner-dimension block. MiniLM's inner sizes (384 and 1,536) fit in one; blocks of 256 (a
-/// weight panel in L1) measured no faster on the encoder (notes/encoder-speed.md, step 7).
+/// weight panel in L1) measured no faster on the encoder (notes/encoder-speed.md, step 9).
 const KC: usize = 2048;
 /// Activation rows per block: the unit of work handed to a thread, and the rows that pass
 /// under each weight panel while it is in cache.
