@@ -3,10 +3,12 @@
 //! The stock candle model pads every batch to its longest input and runs attention over the
 //! padded square. Here a batch is one `[tokens, hidden]` matrix holding every sequence's rows
 //! back to back: the projections and the feed-forward are single large matrix products over all
-//! real tokens, and attention runs per sequence and head on exactly that sequence's rows, read in
-//! place from the fused query/key/value matrix (no transposes, no masks, no copies). The
-//! row-wise steps are fused (bias+GELU, bias+residual+LayerNorm). Weights are copied once into
-//! the layouts these products want.
+//! real tokens, and attention runs per sequence and head on exactly that sequence's rows, read
+//! from the fused query/key/value matrix (no masks; each head's keys and values are packed for
+//! the tiled product, a copy linear in the length against quadratic work). Bias and GELU are
+//! applied inside the products, bias+residual+LayerNorm in one pass. Weights are packed once,
+//! at load, into the layout the products want. With several threads, each takes its own run of
+//! the batch ([`PackedModel::forward_shared_out`]).
 use rayon::prelude::*;
 
 use super::kernels;
@@ -270,18 +272,22 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
             }
         })
     };
-    let linear = |pre: &str, inputs: usize, outputs: usize| -> Result<Linear, String> {
-        let weight = get(&format!("{pre}.weight"))?;
-        if weight.len() != inputs * outputs {
+    // A dense layer's `[outputs, inputs]` weight and `[outputs]` bias, sizes checked here so a
+    // malformed file is an error naming the tensor, never a panic in the packing.
+    let weight_and_bias = |pre: &str, inputs: usize, outputs: usize| {
+        let (w, b) = (get(&format!("{pre}.weight"))?, get(&format!("{pre}.bias"))?);
+        if w.len() != inputs * outputs || b.len() != outputs {
             return Err(format!(
-                "tensor `{pre}.weight` has {} values, expected {}",
-                weight.len(),
-                inputs * outputs
+                "tensor `{pre}` does not have {outputs}x{inputs} weights and {outputs} biases"
             ));
         }
+        Ok((w, b))
+    };
+    let linear = |pre: &str, inputs: usize, outputs: usize| -> Result<Linear, String> {
+        let (weight, bias) = weight_and_bias(pre, inputs, outputs)?;
         Ok(Linear {
             weight: PackedRhs::from_linear_weight(&weight, outputs, inputs),
-            bias: get(&format!("{pre}.bias"))?,
+            bias,
             inputs,
             outputs,
         })
@@ -304,20 +310,8 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
     for l in 0..dims.layers {
         let pre = format!("encoder.layer.{l}");
         // Query, key and value stacked as one [3h, h] weight: one product instead of three.
-        let self_attn = |part: &str| -> Result<(Vec<f32>, Vec<f32>), String> {
-            let name = format!("{pre}.attention.self.{part}");
-            let (w, b) = (
-                get(&format!("{name}.weight"))?,
-                get(&format!("{name}.bias"))?,
-            );
-            if w.len() != h * h || b.len() != h {
-                return Err(format!(
-                    "tensor `{name}` does not have {h}x{h} weights and {h} biases"
-                ));
-            }
-            Ok((w, b))
-        };
-        let (q, k, v) = (self_attn("query")?, self_attn("key")?, self_attn("value")?);
+        let part = |name: &str| weight_and_bias(&format!("{pre}.attention.self.{name}"), h, h);
+        let (q, k, v) = (part("query")?, part("key")?, part("value")?);
         let qkv = Linear {
             weight: PackedRhs::from_linear_weight(&[q.0, k.0, v.0].concat(), 3 * h, h),
             bias: [q.1, k.1, v.1].concat(),

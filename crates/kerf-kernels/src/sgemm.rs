@@ -44,7 +44,9 @@ impl PackedRhs {
     /// Panics when `weight.len() != outputs * inputs`.
     pub fn from_linear_weight(weight: &[f32], outputs: usize, inputs: usize) -> Self {
         assert_eq!(weight.len(), outputs * inputs, "weight shape");
-        Self::pack(inputs, outputs, |kk, j| weight[j * inputs + kk])
+        let mut packed = Self::default();
+        packed.repack_rows_transposed(Rows::new(weight, outputs, inputs, inputs), 1.0);
+        packed
     }
 
     /// Pack a row-major `k x n` matrix.
@@ -52,91 +54,55 @@ impl PackedRhs {
     /// Panics when `b.len() != k * n`.
     pub fn from_rows(b: &[f32], k: usize, n: usize) -> Self {
         assert_eq!(b.len(), k * n, "matrix shape");
-        Self::pack(k, n, |kk, j| b[kk * n + j])
-    }
-
-    fn pack(k: usize, n: usize, at: impl Fn(usize, usize) -> f32) -> Self {
-        let mut packed = Self {
-            k: 0,
-            n: 0,
-            n_padded: 0,
-            data: Vec::new(),
-        };
-        packed.repack(k, n, at);
+        let mut packed = Self::default();
+        packed.repack_rows(Rows::new(b, k, n, n), 1.0);
         packed
     }
 
-    /// Refill with the `k x n` matrix whose element `(p, j)` is `at(p, j)`, reusing the
-    /// allocation.
-    fn repack(&mut self, k: usize, n: usize, at: impl Fn(usize, usize) -> f32) {
-        self.reshape(k, n);
-        let n_padded = self.n_padded;
-        let data = &mut self.data;
-        let mut pos = 0;
-        for pc in (0..k).step_by(KC) {
-            let kc = KC.min(k - pc);
-            for jr in (0..n_padded).step_by(NR) {
-                for kk in pc..pc + kc {
-                    for j in jr..jr + NR {
-                        if j < n {
-                            data[pos] = at(kk, j);
-                        }
-                        pos += 1;
-                    }
-                }
-            }
-        }
-        debug_assert_eq!(pos, data.len());
-    }
-
-    /// Refill with `scale * src` (`src.rows() x src.cols()`), copying row pieces whole: the
-    /// values of one attention head as the right-hand side of `P V`.
+    /// Refill with `scale * src` (`src.rows() x src.cols()`), copying row pieces whole,
+    /// reusing the allocation: the values of one attention head as the right-hand side of
+    /// `P V`.
     pub fn repack_rows(&mut self, src: Rows<'_>, scale: f32) {
-        self.reshape(src.rows, src.cols);
-        let (k, n, n_padded) = (self.k, self.n, self.n_padded);
-        for pc in (0..k).step_by(KC) {
-            let kc = KC.min(k - pc);
-            for jr in (0..n_padded).step_by(NR) {
-                let cols = NR.min(n - jr);
-                let start = pc * n_padded + jr * kc;
-                let panel = &mut self.data[start..start + kc * NR];
-                for (p, out) in panel.chunks_exact_mut(NR).enumerate() {
-                    let row = src.row(pc + p, jr, cols);
-                    for (o, v) in out.iter_mut().zip(row) {
-                        *o = scale * v;
-                    }
+        self.refill(src.rows, src.cols, |pc, jr, panel| {
+            let cols = NR.min(src.cols - jr);
+            for (p, out) in panel.chunks_exact_mut(NR).enumerate() {
+                for (o, v) in out.iter_mut().zip(src.row(pc + p, jr, cols)) {
+                    *o = scale * v;
                 }
             }
-        }
+        });
     }
 
-    /// Refill with `scale * src^T` (`src.cols() x src.rows()`), reading each source row once:
-    /// the keys of one attention head as the right-hand side of `Q K^T`.
+    /// Refill with `scale * src^T` (`src.cols() x src.rows()`), reading each source row once,
+    /// reusing the allocation: a `Linear` weight, or the keys of one attention head as the
+    /// right-hand side of `Q K^T`.
     pub fn repack_rows_transposed(&mut self, src: Rows<'_>, scale: f32) {
-        self.reshape(src.cols, src.rows);
-        let (k, n, n_padded) = (self.k, self.n, self.n_padded);
-        for pc in (0..k).step_by(KC) {
-            let kc = KC.min(k - pc);
-            for jr in (0..n_padded).step_by(NR) {
-                let start = pc * n_padded + jr * kc;
-                let panel = &mut self.data[start..start + kc * NR];
-                for j in 0..NR.min(n - jr) {
-                    let row = src.row(jr + j, pc, kc);
-                    for (p, v) in row.iter().enumerate() {
-                        panel[p * NR + j] = scale * v;
-                    }
+        self.refill(src.cols, src.rows, |pc, jr, panel| {
+            let kc = panel.len() / NR;
+            for j in 0..NR.min(src.rows - jr) {
+                for (p, v) in src.row(jr + j, pc, kc).iter().enumerate() {
+                    panel[p * NR + j] = scale * v;
                 }
             }
-        }
+        });
     }
 
-    /// Size for a `k x n` matrix, every value zero (padding columns must be).
-    fn reshape(&mut self, k: usize, n: usize) {
+    /// Size for a `k x n` matrix with every value zero (padding columns must stay so), then
+    /// hand `fill` each panel in turn as `(first inner row, first column, panel)`; a panel is
+    /// `kc x NR` values, k-major. The one place the layout is written; [`Self::panel`] reads it.
+    fn refill(&mut self, k: usize, n: usize, mut fill: impl FnMut(usize, usize, &mut [f32])) {
         self.n_padded = n.div_ceil(NR) * NR;
         self.k = k;
         self.n = n;
         self.data.clear();
         self.data.resize(k * self.n_padded, 0.0);
+        for pc in (0..k).step_by(KC) {
+            let kc = KC.min(k - pc);
+            for jr in (0..self.n_padded).step_by(NR) {
+                let start = pc * self.n_padded + jr * kc;
+                fill(pc, jr, &mut self.data[start..start + kc * NR]);
+            }
+        }
     }
 
     /// Inner dimension.
@@ -302,10 +268,13 @@ fn matmul_block<'a>(
     let tail = mc % MR;
     for pc in (0..k).step_by(KC) {
         let kc = KC.min(k - pc);
-        ragged.clear();
-        ragged.resize(MR * kc, 0.0);
-        for r in 0..tail {
-            ragged[r * kc..(r + 1) * kc].copy_from_slice(a.row(first + full * MR + r, pc, kc));
+        if tail > 0 {
+            ragged.clear();
+            ragged.resize(MR * kc, 0.0);
+            for r in 0..tail {
+                let row = a.row(first + full * MR + r, pc, kc);
+                ragged[r * kc..(r + 1) * kc].copy_from_slice(row);
+            }
         }
         // Row slices of every sliver, on the stack (a block has at most MC / MR + 1).
         let mut slivers = [[&[] as &[f32]; MR]; MC / MR + 1];
@@ -483,25 +452,37 @@ mod tests {
     }
 
     #[test]
-    fn packing_from_rows_in_place_equals_packing_by_element() {
-        // Rows read in place from a wider matrix (stride 50), straight and transposed, scaled,
-        // must give the very layout the element-wise packers give.
-        let (k, n, stride) = (37, 21, 50);
-        let wide = data(k * stride, 9);
-        let dense: Vec<f32> = (0..k * n)
-            .map(|i| 2.0 * wide[(i / n) * stride + i % n])
-            .collect();
-        let mut got = PackedRhs::default();
-        got.repack_rows(Rows::new(&wide, k, n, stride), 2.0);
-        assert_eq!(got.data, PackedRhs::from_rows(&dense, k, n).data);
-        // Transposed: the source rows are the n outputs, each k long (a Linear weight).
-        let wide_t = data(n * stride, 10);
-        let w: Vec<f32> = (0..n * k)
-            .map(|i| 2.0 * wide_t[(i / k) * stride + i % k])
-            .collect();
-        got.repack_rows_transposed(Rows::new(&wide_t, n, k, stride), 2.0);
-        assert_eq!(got.data, PackedRhs::from_linear_weight(&w, n, k).data);
-        assert_eq!((got.inner(), got.outputs()), (k, n));
+    fn packed_layout_is_the_blis_panel_layout() {
+        // The layout written out from its definition (module docs): panels of NR columns,
+        // k-major inside each KC block, columns past n zero. Rows read in place from a wider
+        // matrix (stride k + n + 3), scaled, straight and transposed; the second shape spans
+        // two KC blocks.
+        for (k, n) in [(37usize, 21usize), (KC + 52, 5)] {
+            let stride = k + n + 3;
+            let n_padded = n.div_ceil(NR) * NR;
+            let expected = |b: &dyn Fn(usize, usize) -> f32| {
+                let mut out = Vec::new();
+                for pc in (0..k).step_by(KC) {
+                    for jr in (0..n_padded).step_by(NR) {
+                        for p in pc..(pc + KC).min(k) {
+                            for j in jr..jr + NR {
+                                out.push(if j < n { b(p, j) } else { 0.0 });
+                            }
+                        }
+                    }
+                }
+                out
+            };
+            let wide = data(k * stride, 9);
+            let mut got = PackedRhs::default();
+            got.repack_rows(Rows::new(&wide, k, n, stride), 2.0);
+            assert_eq!(got.data, expected(&|p, j| 2.0 * wide[p * stride + j]));
+            // Transposed: the source rows are the n outputs, each k long (a Linear weight).
+            let wide_t = data(n * stride, 10);
+            got.repack_rows_transposed(Rows::new(&wide_t, n, k, stride), 2.0);
+            assert_eq!(got.data, expected(&|p, j| 2.0 * wide_t[j * stride + p]));
+            assert_eq!((got.inner(), got.outputs()), (k, n));
+        }
     }
 
     #[test]
