@@ -189,39 +189,51 @@ fn debian_faq_retrieval() {
         "best chunked MRR {best:.3} vs truncation {trunc:.3}"
     );
 
-    // The accuracy cost of bf16 weights on this retrieval task: the windows plan again, chunks
-    // and questions embedded with bf16-rounded weights, against the f32 figures above.
-    let bf16 = BertEmbedder::load(
-        &info.dir,
-        &EmbedOptions {
-            max_input_tokens: 512,
-            precision: Precision::Bf16,
-            ..Default::default()
-        },
-    )
-    .unwrap();
-    let bf16_refs = engine::embed_refs(&bf16, None, &refs).unwrap();
-    let chunks = engine::cut_corpus(&corpus, &windows, &counter);
-    let (vectors, _) =
-        engine::embed_chunks(&corpus, &chunks, &windows, &bf16, None, &mut |_, _| {}).unwrap();
-    for (agg, f32_mrr) in [
-        (ChunkPooling::Mean, results[1].1),
-        (ChunkPooling::Best, results[2].1),
-    ] {
-        let mut p = windows.clone();
-        p.profile.pool.chunks = agg;
-        let e = engine::score_plan(&corpus, &refs, &bf16_refs, &p, chunks.clone(), &vectors, 0);
-        println!(
-            "bf16 {:<10} MRR {:.3} (f32 {f32_mrr:.3}, change {:+.4})",
-            agg.name(),
-            e.summary.mrr,
-            e.summary.mrr - f32_mrr
-        );
-        // Tolerance (ours): bf16 may move single ranks, not the plan's standing.
-        assert!(
-            (e.summary.mrr - f32_mrr).abs() <= 0.02,
-            "bf16 MRR {} vs f32 {f32_mrr}",
-            e.summary.mrr
-        );
+    // The accuracy cost of each reduced precision on this retrieval task: the windows plan
+    // again, chunks and questions embedded at that precision, against the f32 figures above.
+    // Tolerance (ours): bf16 may move single ranks, not the plan's standing (0.02); int8, with
+    // 8-bit weights and activations, 0.03.
+    for (precision, tolerance) in [(Precision::Bf16, 0.02), (Precision::Int8, 0.03)] {
+        let encoder = BertEmbedder::load(
+            &info.dir,
+            &EmbedOptions {
+                max_input_tokens: 512,
+                precision,
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        let reduced_refs = engine::embed_refs(&encoder, None, &refs).unwrap();
+        let chunks = engine::cut_corpus(&corpus, &windows, &counter);
+        let (vectors, _) =
+            engine::embed_chunks(&corpus, &chunks, &windows, &encoder, None, &mut |_, _| {})
+                .unwrap();
+        for (agg, f32_mrr) in [
+            (ChunkPooling::Mean, results[1].1),
+            (ChunkPooling::Best, results[2].1),
+        ] {
+            let mut p = windows.clone();
+            p.profile.pool.chunks = agg;
+            let e = engine::score_plan(
+                &corpus,
+                &refs,
+                &reduced_refs,
+                &p,
+                chunks.clone(),
+                &vectors,
+                0,
+            );
+            println!(
+                "{precision:?} {:<10} MRR {:.3} (f32 {f32_mrr:.3}, change {:+.4})",
+                agg.name(),
+                e.summary.mrr,
+                e.summary.mrr - f32_mrr
+            );
+            assert!(
+                (e.summary.mrr - f32_mrr).abs() <= tolerance,
+                "{precision:?} MRR {} vs f32 {f32_mrr}",
+                e.summary.mrr
+            );
+        }
     }
 }

@@ -138,14 +138,6 @@ impl BertEmbedder {
                 opts.precision
             )));
         }
-        if opts.precision == Precision::Int8 {
-            return Err(EmbedError::Unsupported(
-                "precision int8 is not available in this build: without int8 dot-product \
-                 instructions (AVX-512 VNNI) the integer multiplies measured at most 1.5x the f32 \
-                 rate, not worth 8-bit accuracy (notes/encoder-speed.md); use \"f32\" or \"bf16\""
-                    .into(),
-            ));
-        }
         let cfg_path = dir.join("config.json");
         let raw = read_json(&cfg_path)?;
         let model_type = raw
@@ -273,8 +265,8 @@ impl BertEmbedder {
                 };
                 let st = safetensors::SafeTensors::deserialize(&mmap)
                     .map_err(|e| file_err(&weights_path, e))?;
-                let mut model = packed::load(&st, dims).map_err(|e| file_err(&weights_path, e))?;
-                model.set_precision(opts.precision);
+                let model = packed::load(&st, dims, opts.precision)
+                    .map_err(|e| file_err(&weights_path, e))?;
                 Runner::Packed(model)
             }
         };

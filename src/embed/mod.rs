@@ -34,9 +34,11 @@ pub enum Precision {
     /// 32-bit floats.
     #[default]
     F32,
-    /// bfloat16 (not available in this build).
+    /// bfloat16 weights with f32 arithmetic: the accuracy of bf16, not yet its speed (no kernel
+    /// for bf16 dot-product instructions; notes/encoder-speed.md).
     Bf16,
-    /// 8-bit integers (not available in this build).
+    /// 8-bit weights (per output column) and activations (per row, quantised as they arrive)
+    /// with 32-bit integer sums, in the dense layers; attention stays f32.
     Int8,
 }
 

@@ -13,6 +13,7 @@ use rayon::prelude::*;
 
 use super::kernels;
 use super::kernels::attention::{attend, Scratch};
+use super::kernels::qgemm::{matmul_i8, PackedI8};
 use super::kernels::sgemm::{matmul_packed, Epilogue, PackedRhs, Rows};
 use super::{Precision, TokenPooling};
 
@@ -35,10 +36,36 @@ pub struct Dims {
     pub eps: f32,
 }
 
+/// A dense layer's weight `W^T` (PyTorch stores `W` as `[out, in]`), packed once in the
+/// layout of the product of its precision.
+pub enum Weight {
+    /// f32 panels (also bf16: f32 panels of values rounded to bf16).
+    F32(PackedRhs),
+    /// 8-bit codes with a scale per output.
+    I8(PackedI8),
+}
+
+impl Weight {
+    /// Pack a `[outputs, inputs]` row-major weight for `precision`.
+    pub fn pack(w: &[f32], outputs: usize, inputs: usize, precision: Precision) -> Self {
+        match precision {
+            Precision::F32 => Self::F32(PackedRhs::from_linear_weight(w, outputs, inputs)),
+            Precision::Bf16 => {
+                let rounded: Vec<f32> = w
+                    .iter()
+                    .map(|&v| half::bf16::from_f32(v).to_f32())
+                    .collect();
+                Self::F32(PackedRhs::from_linear_weight(&rounded, outputs, inputs))
+            }
+            Precision::Int8 => Self::I8(PackedI8::from_linear_weight(w, outputs, inputs)),
+        }
+    }
+}
+
 /// A dense layer `y = x W^T + b`, its weight packed once for the blocked product.
 pub struct Linear {
-    /// `W^T` (PyTorch stores `W` as `[out, in]`) in the product's panel layout.
-    pub weight: PackedRhs,
+    /// The weight, in its precision's layout.
+    pub weight: Weight,
     /// Bias, `[out]`.
     pub bias: Vec<f32>,
     /// Input width.
@@ -91,21 +118,6 @@ pub struct PackedModel {
     pub embeddings: Embeddings,
     /// Encoder layers.
     pub layers: Vec<Layer>,
-}
-
-impl PackedModel {
-    /// Switch the arithmetic. `Bf16` rounds every matrix weight to the nearest bfloat16, so
-    /// products see bf16 weights with f32 accumulation (what bf16 dot-product instructions
-    /// compute); `F32` leaves the weights as loaded.
-    pub fn set_precision(&mut self, precision: Precision) {
-        if precision == Precision::Bf16 {
-            for l in &mut self.layers {
-                for lin in [&mut l.qkv, &mut l.attn_out, &mut l.up, &mut l.down] {
-                    lin.weight.map_weights(|w| half::bf16::from_f32(w).to_f32());
-                }
-            }
-        }
-    }
 }
 
 /// Rows per parallel task in the row-wise steps.
@@ -243,8 +255,15 @@ impl PackedModel {
 
 /// Read the weights of a BERT checkpoint from safetensors bytes (f32, f16 or bf16 tensors, names
 /// with or without a `bert.` prefix) into the packed layouts. Shapes must already have been
-/// checked against `dims`; `Err` carries the name of a tensor that could not be read.
-pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel, String> {
+/// checked against `dims`; `Err` carries the name of a tensor that could not be read. The dense
+/// layers' weights are packed for `precision`: bf16 rounds them to bfloat16 (products then see
+/// bf16 weights with f32 accumulation, what bf16 dot-product instructions compute), int8
+/// quantises them per output column for the 8-bit product.
+pub fn load(
+    st: &safetensors::SafeTensors<'_>,
+    dims: Dims,
+    precision: Precision,
+) -> Result<PackedModel, String> {
     let get = |name: &str| -> Result<Vec<f32>, String> {
         let t = st
             .tensor(name)
@@ -286,7 +305,7 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
     let linear = |pre: &str, inputs: usize, outputs: usize| -> Result<Linear, String> {
         let (weight, bias) = weight_and_bias(pre, inputs, outputs)?;
         Ok(Linear {
-            weight: PackedRhs::from_linear_weight(&weight, outputs, inputs),
+            weight: Weight::pack(&weight, outputs, inputs, precision),
             bias,
             inputs,
             outputs,
@@ -313,7 +332,7 @@ pub fn load(st: &safetensors::SafeTensors<'_>, dims: Dims) -> Result<PackedModel
         let part = |name: &str| weight_and_bias(&format!("{pre}.attention.self.{name}"), h, h);
         let (q, k, v) = (part("query")?, part("key")?, part("value")?);
         let qkv = Linear {
-            weight: PackedRhs::from_linear_weight(&[q.0, k.0, v.0].concat(), 3 * h, h),
+            weight: Weight::pack(&[q.0, k.0, v.0].concat(), 3 * h, h, precision),
             bias: [q.1, k.1, v.1].concat(),
             inputs: h,
             outputs: 3 * h,
@@ -358,7 +377,10 @@ pub fn split_by_tokens(lens: &[usize], parts: usize) -> Vec<std::ops::Range<usiz
 
 /// `out = epilogue(x W^T)` over all rows of `x`.
 fn dense(out: &mut [f32], x: &[f32], layer: &Linear, epilogue: Epilogue<'_>, threads: usize) {
-    matmul_packed(out, x, &layer.weight, epilogue, threads);
+    match &layer.weight {
+        Weight::F32(w) => matmul_packed(out, x, w, epilogue, threads),
+        Weight::I8(w) => matmul_i8(out, x, w, epilogue, threads),
+    }
 }
 
 fn par_rows(x: &mut [f32], width: usize, f: impl Fn(&mut [f32]) + Sync) {

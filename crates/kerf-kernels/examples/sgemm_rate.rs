@@ -1,8 +1,10 @@
-//! fp32 rate of `sgemm::matmul_packed` (weights packed once) on MiniLM's projection shapes and
-//! a 2048-cube, on `THREADS` threads of one pool. Compare with `fma_peak` (the hardware peak)
-//! and PyTorch's product measured by scripts/bench-embed.
+//! Rates of `sgemm::matmul_packed` (fp32, weights packed once) and `qgemm::matmul_i8` (8-bit,
+//! activations quantised on the fly) on MiniLM's projection shapes and a 2048-cube, on
+//! `THREADS` threads of one pool, in multiply-adds counted as two operations. Compare with
+//! `fma_peak` (the hardware peak) and PyTorch's product measured by scripts/bench-embed.
 //!
 //! Usage: cargo run --release -p kerf-kernels --example sgemm_rate [THREADS]
+use kerf_kernels::qgemm::{matmul_i8, PackedI8};
 use kerf_kernels::sgemm::{matmul_packed, Epilogue, PackedRhs};
 use std::time::Instant;
 
@@ -27,18 +29,26 @@ fn main() {
         let w: Vec<f32> = (0..n * k).map(|i| (i % 5) as f32 * 0.1).collect();
         let mut c = vec![0f32; m * n];
         let rhs = PackedRhs::from_linear_weight(&w, n, k);
+        let rhs8 = PackedI8::from_linear_weight(&w, n, k);
         let flop = 2.0 * (m * k * n) as f64;
-        matmul_packed(&mut c, &a, &rhs, Epilogue::Plain, threads);
         // Best of three timings of four products: the machine is shared and noisy.
-        let best = (0..3)
-            .map(|_| {
-                let t = Instant::now();
-                for _ in 0..4 {
-                    matmul_packed(&mut c, &a, &rhs, Epilogue::Plain, threads);
-                }
-                4.0 * flop / t.elapsed().as_secs_f64() / 1e9
-            })
-            .fold(0f64, f64::max);
-        println!("{m}x{k}x{n}: {best:.1} GFLOP/s");
+        let best = |f: &mut dyn FnMut()| {
+            f();
+            (0..3)
+                .map(|_| {
+                    let t = Instant::now();
+                    for _ in 0..4 {
+                        f();
+                    }
+                    4.0 * flop / t.elapsed().as_secs_f64() / 1e9
+                })
+                .fold(0f64, f64::max)
+        };
+        let f32_rate = best(&mut || matmul_packed(&mut c, &a, &rhs, Epilogue::Plain, threads));
+        let i8_rate = best(&mut || matmul_i8(&mut c, &a, &rhs8, Epilogue::Plain, threads));
+        println!(
+            "{m}x{k}x{n}: f32 {f32_rate:.1} GFLOP/s, int8 {i8_rate:.1} GOP/s ({:.2}x)",
+            i8_rate / f32_rate
+        );
     }
 }

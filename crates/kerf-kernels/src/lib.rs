@@ -9,6 +9,7 @@
 use multiversion::multiversion;
 
 pub mod attention;
+pub mod qgemm;
 pub mod sgemm;
 
 const LOG2E: f32 = std::f32::consts::LOG2_E;
