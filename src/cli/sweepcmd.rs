@@ -212,8 +212,10 @@ pub fn run(a: SweepArgs) -> Result<()> {
     let cache = a.encoder.open_cache()?;
     let mut encoders = Encoders::new(&a.encoder);
     let mut rows: Vec<Row> = Vec::new();
-    let (mut embedded, mut scored, mut enc_seconds, mut enc_tokens) =
-        (0usize, 0usize, 0.0f64, 0usize);
+    let (mut embedded, mut scored) = (0usize, 0usize);
+    // Encoding seconds and tokens per precision: int8 runs faster than f32, so each plan's
+    // time is estimated from its own precision's measured rate.
+    let mut measured: std::collections::BTreeMap<String, (f64, usize)> = Default::default();
     let bar = super::embed::progress_bar(groups.len(), a.encoder.quiet, "sweep");
     let mut interrupted = false;
     for (gi, (_, members)) in groups.iter().enumerate() {
@@ -244,8 +246,11 @@ pub fn run(a: SweepArgs) -> Result<()> {
             &mut |_, _| {},
         )?;
         let after = e.stats();
-        enc_seconds += t0.elapsed().as_secs_f64();
-        enc_tokens += after.real_tokens - before.real_tokens;
+        let m = measured
+            .entry(format!("{:?}", first.pool.precision).to_lowercase())
+            .or_default();
+        m.0 += t0.elapsed().as_secs_f64();
+        m.1 += after.real_tokens - before.real_tokens;
         embedded += n_new;
         let padding = after.padded_tokens.saturating_sub(after.real_tokens)
             - before.padded_tokens.saturating_sub(before.real_tokens);
@@ -293,20 +298,26 @@ pub fn run(a: SweepArgs) -> Result<()> {
         b.finish_and_clear();
     }
     anyhow::ensure!(!rows.is_empty(), "sweep interrupted before any plan finished (vectors embedded so far are kept in the cache)");
-    // Time estimates from the throughput measured in this sweep (a fixed guess when everything
-    // came from the cache).
-    let tokens_per_second = if enc_seconds > 0.5 && enc_tokens > 0 {
-        enc_tokens as f64 / enc_seconds
-    } else {
-        0.0
-    };
+    // Time estimates from the throughput measured in this sweep, per precision (unknown when
+    // a precision's vectors all came from the cache).
+    let rates = measured_rates(&measured);
     for r in &mut rows {
-        r.cost.embed_seconds = if tokens_per_second > 0.0 {
-            r.cost.input_tokens as f64 / tokens_per_second
-        } else {
-            f64::NAN
+        let key = format!("{:?}", r.profile.pool.precision).to_lowercase();
+        r.cost.embed_seconds = match rates.iter().find(|(p, _)| *p == key) {
+            Some((_, rate)) => r.cost.input_tokens as f64 / rate,
+            None => f64::NAN,
         };
     }
+    let rate_note: String = rates
+        .iter()
+        .map(|(p, rate)| {
+            if rates.len() == 1 {
+                format!(" · {rate:.0} tokens/s measured")
+            } else {
+                format!(" · {p} {rate:.0} tokens/s measured")
+            }
+        })
+        .collect();
     let points: Vec<(f64, f64)> = rows
         .iter()
         .map(|r| (r.quality, r.cost.input_tokens as f64))
@@ -348,7 +359,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 "chunk_sets": groups.len(),
                 "chunks_embedded": embedded,
                 "chunks_scored": scored,
-                "tokens_per_second": tokens_per_second,
+                "tokens_per_second": rates.iter().cloned().collect::<std::collections::BTreeMap<_, _>>(),
                 "sampled": scale != 1.0,
                 "interrupted": interrupted,
             }))?
@@ -376,7 +387,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 r.cost.storage_f32_bytes as f64 / 1e6
             )?;
         }
-        writeln!(out, "◆ on the quality/cost front · {} chunk sets for {} plans: {embedded} chunks embedded, {scored} chunks scored{}", groups.len(), rows.len(), if tokens_per_second > 0.0 { format!(" · {tokens_per_second:.0} tokens/s measured") } else { String::new() })?;
+        writeln!(out, "◆ on the quality/cost front · {} chunk sets for {} plans: {embedded} chunks embedded, {scored} chunks scored{rate_note}", groups.len(), rows.len())?;
         if scale != 1.0 {
             writeln!(
                 out,
@@ -397,4 +408,34 @@ pub fn run(a: SweepArgs) -> Result<()> {
     }
     out.flush()?;
     Ok(())
+}
+
+/// Tokens a second per precision, from `(seconds, tokens)` measured while embedding; only
+/// measurements long enough to mean something (half a second) count.
+fn measured_rates(
+    measured: &std::collections::BTreeMap<String, (f64, usize)>,
+) -> Vec<(String, f64)> {
+    measured
+        .iter()
+        .filter(|(_, (seconds, tokens))| *seconds > 0.5 && *tokens > 0)
+        .map(|(p, (seconds, tokens))| (p.clone(), *tokens as f64 / seconds))
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::measured_rates;
+
+    #[test]
+    fn rates_are_per_precision_and_skip_short_measurements() {
+        let mut m = std::collections::BTreeMap::new();
+        m.insert("f32".to_string(), (2.0, 10_000));
+        m.insert("int8".to_string(), (1.0, 8_000));
+        m.insert("bf16".to_string(), (0.2, 1_000)); // too short to trust
+        m.insert("f16".to_string(), (3.0, 0)); // everything came from the cache
+        assert_eq!(
+            measured_rates(&m),
+            vec![("f32".to_string(), 5_000.0), ("int8".to_string(), 8_000.0)]
+        );
+    }
 }
