@@ -1,7 +1,8 @@
 //! Numerical kernels of kerf's packed encoder.
 //!
 //! Matrix products are [`sgemm`]'s register-tiled product against weights packed once at load
-//! time, and [`attention`] runs each head on the same product. The row-wise steps between them
+//! time, and [`attention`] runs each head on the same product; [`qgemm`] is the 8-bit product
+//! of `precision = "int8"`. The row-wise steps between them
 //! (bias, GELU, softmax, LayerNorm) are plain loops over slices. Everything is safe Rust:
 //! `multiversion` compiles the hot loops a second time for AVX2+FMA and picks the build at run
 //! time, so a binary built for any x86-64 uses the wide instructions where the CPU has them and
