@@ -254,3 +254,70 @@ fn outputs_read_back_and_match_the_manifest() {
         ],
     ));
 }
+
+#[test]
+fn int8_profile_embeds_its_own_vectors_close_to_f32() {
+    // One cache for both runs: int8 vectors must not be served from f32 ones (the precision is
+    // part of the model fingerprint), and must stay close to them. Tolerance as in
+    // tests/embed_reference.rs (measured worst cosine 0.9922 over the reference texts).
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    std::fs::create_dir(d.join("corpus")).unwrap();
+    faq_corpus(&d.join("corpus"));
+    // Three chapters are enough chunks (about 60) and keep the two runs short.
+    for i in 4..=16 {
+        std::fs::remove_file(d.join(format!("corpus/chapter-{i:02}.txt"))).unwrap();
+    }
+    let f32_profile = common::repo().join("profiles/sentences-128.toml");
+    let text = std::fs::read_to_string(&f32_profile).unwrap();
+    assert!(
+        !text.contains("precision"),
+        "the shipped profile is f32 by default"
+    );
+    let int8 = text.replace("[pool]\n", "[pool]\nprecision = \"int8\"\n");
+    std::fs::write(d.join("int8.toml"), int8).unwrap();
+    let run = |profile: &str, out: &str| {
+        let o = kerf_in(
+            d,
+            &[
+                "embed", "-p", profile, "corpus", "--out", out, "--cache", "c.sqlite",
+            ],
+        );
+        ok(&o);
+        let m: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(d.join(out).join("manifest.json")).unwrap())
+                .unwrap();
+        let (rows, cols, data) = kerf::export::read_npy_f32(
+            &std::fs::read(d.join(out).join("chunk_vectors.npy")).unwrap(),
+        )
+        .unwrap();
+        (
+            String::from_utf8_lossy(&o.stderr).into_owned(),
+            m,
+            rows,
+            cols,
+            data,
+        )
+    };
+    let (_, m32, rows, cols, a) = run(f32_profile.to_str().unwrap(), "f32");
+    let (log, m8, rows8, _, b) = run("int8.toml", "int8");
+    assert_eq!(
+        m8["profile"]["pool"]["precision"], "int8",
+        "{}",
+        m8["profile"]
+    );
+    assert_eq!(m32["profile"]["pool"]["precision"], "f32");
+    assert_eq!(rows, rows8, "the same chunks");
+    assert!(
+        log.contains(" 0 from cache"),
+        "int8 took f32 vectors: {log}"
+    );
+    let mut worst = 1.0f32;
+    for r in 0..rows {
+        let (x, y) = (&a[r * cols..(r + 1) * cols], &b[r * cols..(r + 1) * cols]);
+        worst = worst.min(x.iter().zip(y).map(|(p, q)| p * q).sum());
+    }
+    println!("int8 vs f32 over {rows} Debian FAQ chunks: worst cosine {worst:.5}");
+    assert!(rows >= 30, "{rows} chunks");
+    assert!((0.99..0.9999).contains(&worst), "worst cosine {worst}");
+}

@@ -229,6 +229,12 @@ impl BertEmbedder {
             )
             .as_bytes(),
         );
+        if opts.precision == Precision::Int8 {
+            // The quantisation scheme's code ranges: vectors cached under another scheme are
+            // other vectors.
+            use crate::embed::kernels::qgemm::{ACT_MAX, W_MAX};
+            h.update(format!("/int8 codes u{ACT_MAX} i{W_MAX}").as_bytes());
+        }
         let fingerprint: String = h.finalize().iter().map(|b| format!("{b:02x}")).collect();
 
         let runner = match opts.engine {

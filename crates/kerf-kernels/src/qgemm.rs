@@ -63,6 +63,11 @@ impl PackedI8 {
     /// Panics when `weight.len() != outputs * inputs`.
     pub fn from_linear_weight(weight: &[f32], outputs: usize, inputs: usize) -> Self {
         assert_eq!(weight.len(), outputs * inputs, "weight shape");
+        // Each group of four steps adds at most 4 * ACT_MAX * W_MAX to an int32 sum.
+        assert!(
+            inputs <= 4 * (i32::MAX / (4 * ACT_MAX * W_MAX)) as usize,
+            "inner dimension too long for int32 sums"
+        );
         let (k, n) = (inputs, outputs);
         let k_padded = k.div_ceil(4) * 4;
         let n_padded = n.div_ceil(NR) * NR;
@@ -144,9 +149,9 @@ pub fn quantise_row(row: &[f32], codes: &mut [u8]) -> (f32, f32) {
         (lo, 1.0)
     };
     let inv = 1.0 / step;
-    // `v - lo` is never negative, so adding a half and truncating rounds to nearest; the
-    // saturating cast keeps a value rounded just past ACT_MAX + 0.5 at 255 at worst, and
-    // `(hi - lo) * inv` is within an ulp of ACT_MAX, so the largest code is ACT_MAX.
+    // `v - lo` is never negative, so adding a half and truncating rounds to nearest. The
+    // largest, `(hi - lo) * inv`, is within an ulp of ACT_MAX, so it truncates to ACT_MAX (and
+    // the cast saturates at 255 in any case).
     for (c, v) in codes.iter_mut().zip(row) {
         *c = ((v - lo) * inv + 0.5) as u8;
     }
