@@ -82,7 +82,7 @@ fn serve(app: &mut App) {
                 let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
                 app.update(Action::Worker(Report::Done {
                     id: job.id,
-                    pooling: job.pooling,
+                    encoding: job.encoding,
                     keys: job.texts.iter().map(|t| text_key(&job.prefix, t)).collect(),
                     vectors: e.embed(&refs).unwrap(),
                     embedded: job.texts.len(),

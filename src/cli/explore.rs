@@ -18,9 +18,9 @@ use kerf::compare::engine::Corpus;
 use kerf::compare::refs;
 use kerf::compare::sweep::plan_name;
 use kerf::corpus::{Document, InputOptions, Notice};
-use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, HashEmbedder, TokenPooling};
+use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, HashEmbedder};
 use kerf::profile::Profile;
-use kerf::tui::worker::{EmbedderFactory, Worker};
+use kerf::tui::worker::{EmbedderFactory, Encoding, Worker};
 use kerf::tui::{keys, render, Action, App, AppInit};
 
 use super::embed::EncoderArgs;
@@ -242,7 +242,7 @@ pub fn run(a: ExploreArgs) -> Result<()> {
 fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderFactory> {
     if a.hash_embedder {
         let e: Arc<dyn Embedder> = Arc::new(HashEmbedder { dim: 384 });
-        return Ok(Box::new(move |_: TokenPooling| {
+        return Ok(Box::new(move |_: Encoding| {
             Ok::<_, anyhow::Error>(e.clone())
         }));
     }
@@ -256,9 +256,10 @@ fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderF
         precision: loaded.plan.profile.pool.precision,
         engine: a.encoder.engine,
     };
-    let load = move |pooling: TokenPooling| -> Result<Arc<dyn Embedder>> {
+    let load = move |encoding: Encoding| -> Result<Arc<dyn Embedder>> {
         let opts = EmbedOptions {
-            pooling: Some(pooling),
+            pooling: Some(encoding.pooling),
+            precision: encoding.precision,
             ..base.clone()
         };
         Ok(Arc::new(BertEmbedder::load(&dir, &opts).with_context(
@@ -272,11 +273,11 @@ fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderF
     };
     // Load the first encoder now, so a missing or broken model is reported before the screen
     // changes.
-    let first_pooling = loaded.plan.profile.pool.tokens;
-    let first = load(first_pooling)?;
-    let mut ready = Some((first_pooling, first));
-    Ok(Box::new(move |pooling: TokenPooling| match ready.take() {
-        Some((p, e)) if p == pooling => Ok(e),
-        _ => load(pooling),
+    let first_encoding = Encoding::of(&loaded.plan.profile);
+    let first = load(first_encoding)?;
+    let mut ready = Some((first_encoding, first));
+    Ok(Box::new(move |encoding: Encoding| match ready.take() {
+        Some((p, e)) if p == encoding => Ok(e),
+        _ => load(encoding),
     }))
 }

@@ -63,6 +63,10 @@ pub enum Action {
     ChunksNext,
     /// Previous chunk aggregation.
     ChunksPrev,
+    /// Next precision of the forward pass.
+    PrecisionNext,
+    /// Previous precision of the forward pass.
+    PrecisionPrev,
     /// Compare against the current plan from now on.
     Pin,
     /// Compare against the truncation baseline again.

@@ -14,7 +14,7 @@ use crate::compare::metrics::Summary;
 use crate::compare::refs::Reference;
 use crate::compare::sweep::plan_name;
 use crate::corpus::Notice;
-use crate::embed::TokenPooling;
+use crate::embed::{Precision, TokenPooling};
 use crate::model::ModelInfo;
 use crate::plan::{self, ResolvedPlan};
 use crate::pool::{self, ChunkPooling};
@@ -24,7 +24,7 @@ use crate::tokens::TokenCounter;
 
 use super::action::{Action, Pane};
 use super::render;
-use super::worker::{Job, Report, Request};
+use super::worker::{Encoding, Job, Report, Request};
 
 /// Window sizes the w/W keys step through (those above the model's limit are skipped).
 pub const WINDOW_STEPS: [usize; 8] = [64, 128, 192, 256, 320, 384, 448, 512];
@@ -34,6 +34,7 @@ pub const OVERLAP_STEPS: [usize; 10] = [0, 8, 16, 32, 48, 64, 96, 128, 192, 256]
 pub const MIN_CHUNK_STEPS: [usize; 7] = [0, 8, 16, 32, 48, 64, 96];
 const TOKEN_POOLINGS: [TokenPooling; 3] =
     [TokenPooling::Mean, TokenPooling::Cls, TokenPooling::Max];
+const PRECISIONS: [Precision; 3] = [Precision::F32, Precision::Bf16, Precision::Int8];
 
 /// What the explorer starts from.
 pub struct AppInit {
@@ -185,8 +186,8 @@ pub enum Ident {
     Ref(u32),
 }
 
-/// A vector in memory: its identity under a token pooling.
-type VecId = (TokenPooling, Ident);
+/// A vector in memory: its identity under an encoding (token pooling and precision).
+type VecId = (Encoding, Ident);
 
 /// A plan cut over the corpus.
 #[derive(Clone)]
@@ -296,9 +297,9 @@ pub struct App {
     pub status: Option<Status>,
     /// Set when the user quits.
     pub quit: bool,
-    vectors: HashMap<(TokenPooling, Ident), Vec<f32>>,
-    pending: HashMap<u64, Vec<(TokenPooling, Ident)>>,
-    pending_keys: HashSet<(TokenPooling, Ident)>,
+    vectors: HashMap<VecId, Vec<f32>>,
+    pending: HashMap<u64, Vec<VecId>>,
+    pending_keys: HashSet<VecId>,
     progress: HashMap<u64, (usize, usize)>,
     outbox: Vec<Request>,
     next_job: u64,
@@ -524,6 +525,15 @@ impl App {
                     &TOKEN_POOLINGS,
                     p.pool.tokens,
                     matches!(action, Action::TokensNext),
+                );
+                self.apply(p);
+            }
+            Action::PrecisionNext | Action::PrecisionPrev => {
+                let mut p = self.current.plan.profile.clone();
+                p.pool.precision = cycle(
+                    &PRECISIONS,
+                    p.pool.precision,
+                    matches!(action, Action::PrecisionNext),
                 );
                 self.apply(p);
             }
@@ -789,7 +799,7 @@ impl App {
 
     /// Queue embedding jobs for every vector the current and comparison plans lack.
     fn request_missing(&mut self) {
-        let mut jobs: Vec<(Job, Vec<(TokenPooling, Ident)>)> = Vec::new();
+        let mut jobs: Vec<(Job, Vec<VecId>)> = Vec::new();
         let states: Vec<&PlanState> = [
             Some(&self.current),
             Some(&self.baseline),
@@ -798,21 +808,21 @@ impl App {
         .into_iter()
         .flatten()
         .collect();
-        let mut asked: HashSet<(TokenPooling, Ident)> = HashSet::new();
-        let mut poolings: Vec<TokenPooling> = Vec::new();
-        let missing = |id: &(TokenPooling, Ident), asked: &mut HashSet<(TokenPooling, Ident)>| {
+        let mut asked: HashSet<VecId> = HashSet::new();
+        let mut encodings: Vec<Encoding> = Vec::new();
+        let missing = |id: &VecId, asked: &mut HashSet<VecId>| {
             !self.vectors.contains_key(id) && !self.pending_keys.contains(id) && asked.insert(*id)
         };
         for st in &states {
-            let pooling = st.plan.profile.pool.tokens;
-            if !poolings.contains(&pooling) {
-                poolings.push(pooling);
+            let encoding = Encoding::of(&st.plan.profile);
+            if !encodings.contains(&encoding) {
+                encodings.push(encoding);
             }
             let mut texts = Vec::new();
             let mut ids = Vec::new();
             for (d, keys) in st.keys.iter().enumerate() {
                 for (c, k) in keys.iter().enumerate() {
-                    let id = (pooling, *k);
+                    let id = (encoding, *k);
                     if missing(&id, &mut asked) {
                         texts.push(
                             self.corpus.docs[d].text[st.chunks[d][c].byte_range.clone()]
@@ -826,18 +836,18 @@ impl App {
                 let job = Job {
                     id: 0,
                     generation: Some(self.generation),
-                    pooling,
+                    encoding,
                     prefix: st.plan.profile.cut.prefix.clone(),
                     texts,
                 };
                 jobs.push((job, ids));
             }
         }
-        for pooling in poolings {
+        for encoding in encodings {
             // (prefix, texts, their identities)
             let mut by_prefix: Vec<(String, Vec<String>, Vec<VecId>)> = Vec::new();
             for (i, r) in self.refs.iter().enumerate() {
-                let id = (pooling, Ident::Ref(i as u32));
+                let id = (encoding, Ident::Ref(i as u32));
                 if !missing(&id, &mut asked) {
                     continue;
                 }
@@ -854,7 +864,7 @@ impl App {
                 let job = Job {
                     id: 0,
                     generation: None,
-                    pooling,
+                    encoding,
                     prefix,
                     texts,
                 };
@@ -879,7 +889,7 @@ impl App {
             }
             Report::Done {
                 id,
-                pooling,
+                encoding,
                 keys: _,
                 vectors,
                 embedded,
@@ -889,7 +899,7 @@ impl App {
                 self.forget_job(id);
                 self.embedded_total += embedded;
                 for ((p, k), v) in ids.into_iter().zip(vectors) {
-                    debug_assert_eq!(p, pooling);
+                    debug_assert_eq!(p, encoding);
                     self.vectors.insert((p, k), v);
                 }
                 self.rescore();
@@ -1218,16 +1228,16 @@ fn score_state(
     st: &PlanState,
     corpus: &Corpus,
     refs: &[Reference],
-    vectors: &HashMap<(TokenPooling, Ident), Vec<f32>>,
+    vectors: &HashMap<VecId, Vec<f32>>,
 ) -> Option<Scored> {
     if refs.is_empty() {
         return None;
     }
-    let pooling = st.plan.profile.pool.tokens;
+    let encoding = Encoding::of(&st.plan.profile);
     let ref_vecs: Vec<&[f32]> = (0..refs.len())
         .map(|i| {
             vectors
-                .get(&(pooling, Ident::Ref(i as u32)))
+                .get(&(encoding, Ident::Ref(i as u32)))
                 .map(Vec::as_slice)
         })
         .collect::<Option<_>>()?;
@@ -1236,7 +1246,7 @@ fn score_state(
         .iter()
         .map(|ks| {
             ks.iter()
-                .map(|k| vectors.get(&(pooling, *k)).map(Vec::as_slice))
+                .map(|k| vectors.get(&(encoding, *k)).map(Vec::as_slice))
                 .collect::<Option<Vec<_>>>()
         })
         .collect::<Option<_>>()?;
@@ -1442,7 +1452,7 @@ mod tests {
                     let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
                     app.update(Action::Worker(Report::Done {
                         id: job.id,
-                        pooling: job.pooling,
+                        encoding: job.encoding,
                         keys: job.texts.iter().map(|t| text_key(&job.prefix, t)).collect(),
                         vectors: e.embed(&refs).unwrap(),
                         embedded: job.texts.len(),
@@ -1557,6 +1567,40 @@ mod tests {
             .iter()
             .any(|r| matches!(r, Request::Embed(_))));
         assert!(app.current.scored.is_some());
+    }
+
+    #[test]
+    fn precision_change_asks_for_vectors_of_that_precision() {
+        let mut app = demo_app(&DOCS);
+        serve(&mut app);
+        assert_eq!(app.current.plan.profile.pool.precision, Precision::F32);
+        app.update(Action::PrecisionPrev); // f32 -> int8
+        assert_eq!(app.current.plan.profile.pool.precision, Precision::Int8);
+        // The f32 vectors of the same chunks do not stand in for int8 ones.
+        assert!(app.current.scored.is_none());
+        let jobs: Vec<Job> = app
+            .take_requests()
+            .into_iter()
+            .filter_map(|r| match r {
+                Request::Embed(j) => Some(j),
+                _ => None,
+            })
+            .collect();
+        assert!(!jobs.is_empty());
+        assert!(jobs.iter().all(|j| j.encoding.precision == Precision::Int8));
+        let chunks: usize = app.current.chunks.iter().map(Vec::len).sum();
+        let asked: usize = jobs.iter().map(|j| j.texts.len()).sum();
+        assert_eq!(
+            asked,
+            chunks + app.refs.len(),
+            "every chunk and reference, once"
+        );
+        app.update(Action::PrecisionNext); // back to f32: all in memory
+        assert!(app.current.scored.is_some());
+        assert!(!app
+            .take_requests()
+            .iter()
+            .any(|r| matches!(r, Request::Embed(_))));
     }
 
     #[test]

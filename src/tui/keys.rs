@@ -74,6 +74,8 @@ fn key(k: &KeyEvent, app: &App) -> Option<Action> {
         KeyCode::Char('T') => Action::TokensPrev,
         KeyCode::Char('a') => Action::ChunksNext,
         KeyCode::Char('A') => Action::ChunksPrev,
+        KeyCode::Char('e') => Action::PrecisionNext,
+        KeyCode::Char('E') => Action::PrecisionPrev,
         KeyCode::Char('p') => Action::Pin,
         KeyCode::Char('P') => Action::Unpin,
         KeyCode::Char(']') => Action::NextChunk,

@@ -167,6 +167,10 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
         ("min chunk ", p.cut.min_chunk.to_string()),
         ("tokens ", format!("{:?}", p.pool.tokens).to_lowercase()),
         ("chunks ", p.pool.chunks.name().to_string()),
+        (
+            "precision ",
+            format!("{:?}", p.pool.precision).to_lowercase(),
+        ),
     ] {
         plan.push(sep());
         plan.extend(kv(k, v));
@@ -864,7 +868,7 @@ fn status(app: &App, area: Rect, buf: &mut Buffer) {
 }
 
 /// Every key, for the help overlay and the README.
-pub const KEYS: [(&str, &str); 25] = [
+pub const KEYS: [(&str, &str); 26] = [
     ("Tab / Shift-Tab, 1 2 3", "switch pane: Stock, Board, Fit"),
     ("f, Enter", "open the selected document in the Board"),
     (
@@ -884,6 +888,7 @@ pub const KEYS: [(&str, &str); 25] = [
     ),
     ("t / T", "next / previous token pooling (mean cls max)"),
     ("a / A", "next / previous chunk aggregation"),
+    ("e / E", "next / previous encoder precision (f32 bf16 int8)"),
     ("p", "pin the current plan as the comparison"),
     ("P", "compare against the truncation baseline again"),
     ("] / [", "next / previous chunk in the Board"),

@@ -11,20 +11,40 @@ use std::sync::Arc;
 use std::thread::JoinHandle;
 
 use crate::cache::{self, VectorCache};
-use crate::embed::{Embedder, TokenPooling};
+use crate::embed::{Embedder, Precision, TokenPooling};
+use crate::profile::Profile;
 
 /// Cache key of one input: sha256 of prefix and text (see [`crate::cache::text_key`]).
 pub type Key = [u8; 32];
 
-/// Texts to embed under one token pooling and prefix.
+/// Which encoder a vector comes from: a plan's token pooling and arithmetic.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub struct Encoding {
+    /// Token pooling.
+    pub pooling: TokenPooling,
+    /// Arithmetic of the forward pass.
+    pub precision: Precision,
+}
+
+impl Encoding {
+    /// The encoding a profile asks for.
+    pub fn of(profile: &Profile) -> Self {
+        Self {
+            pooling: profile.pool.tokens,
+            precision: profile.pool.precision,
+        }
+    }
+}
+
+/// Texts to embed under one encoding and prefix.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Job {
     /// Identifier the reports carry.
     pub id: u64,
     /// Plan generation the job serves; `None` for jobs that never go stale (references).
     pub generation: Option<u64>,
-    /// Token pooling (selects the encoder).
-    pub pooling: TokenPooling,
+    /// Token pooling and precision (select the encoder).
+    pub encoding: Encoding,
     /// Text put before every input.
     pub prefix: String,
     /// The texts (without the prefix).
@@ -47,8 +67,8 @@ pub enum Report {
     Done {
         /// Job id.
         id: u64,
-        /// Token pooling the vectors were made with.
-        pooling: TokenPooling,
+        /// Encoding the vectors were made with.
+        encoding: Encoding,
         /// Keys of the texts.
         keys: Vec<Key>,
         /// The vectors.
@@ -78,8 +98,8 @@ pub enum Request {
     Generation(u64),
 }
 
-/// Builds (or fetches) the encoder for a token pooling.
-pub type EmbedderFactory = Box<dyn FnMut(TokenPooling) -> anyhow::Result<Arc<dyn Embedder>> + Send>;
+/// Builds (or fetches) the encoder for an encoding.
+pub type EmbedderFactory = Box<dyn FnMut(Encoding) -> anyhow::Result<Arc<dyn Embedder>> + Send>;
 
 /// A running worker.
 pub struct Worker {
@@ -131,7 +151,7 @@ fn run(
             None
         }
     });
-    let mut embedders: HashMap<TokenPooling, Arc<dyn Embedder>> = HashMap::new();
+    let mut embedders: HashMap<Encoding, Arc<dyn Embedder>> = HashMap::new();
     let mut generation = 0u64;
     let mut queue: std::collections::VecDeque<Job> = Default::default();
     loop {
@@ -199,16 +219,16 @@ const SLICE: usize = 16;
 fn embed_job(
     job: &Job,
     factory: &mut EmbedderFactory,
-    embedders: &mut HashMap<TokenPooling, Arc<dyn Embedder>>,
+    embedders: &mut HashMap<Encoding, Arc<dyn Embedder>>,
     cache: Option<&VectorCache>,
     reports: &Sender<Report>,
     poll: &mut dyn FnMut(&mut u64),
 ) -> anyhow::Result<Option<Report>> {
-    let embedder = match embedders.get(&job.pooling) {
+    let embedder = match embedders.get(&job.encoding) {
         Some(e) => e.clone(),
         None => {
-            let e = factory(job.pooling)?;
-            embedders.insert(job.pooling, e.clone());
+            let e = factory(job.encoding)?;
+            embedders.insert(job.encoding, e.clone());
             e
         }
     };
@@ -233,7 +253,7 @@ fn embed_job(
     }
     Ok(Some(Report::Done {
         id: job.id,
-        pooling: job.pooling,
+        encoding: job.encoding,
         keys: texts
             .iter()
             .map(|t| cache::text_key(&job.prefix, t))
@@ -249,7 +269,7 @@ mod tests {
     use crate::embed::HashEmbedder;
 
     fn hash_factory() -> EmbedderFactory {
-        Box::new(|_: TokenPooling| {
+        Box::new(|_: Encoding| {
             Ok::<_, anyhow::Error>(Arc::new(HashEmbedder { dim: 16 }) as Arc<dyn Embedder>)
         })
     }
@@ -260,7 +280,10 @@ mod tests {
         let job = |id, generation| Job {
             id,
             generation,
-            pooling: TokenPooling::Mean,
+            encoding: Encoding {
+                pooling: TokenPooling::Mean,
+                precision: Precision::F32,
+            },
             prefix: String::new(),
             texts: vec!["a b".into(), "c".into()],
         };
