@@ -461,6 +461,36 @@ mod tests {
         assert_eq!(fast, tile_portable(&sliver, kp, &panel));
     }
 
+    proptest::proptest! {
+        // Invariants of the row quantiser on any finite row: codes stay in [0, ACT_MAX], the
+        // row's minimum and maximum get the end codes, every value is rebuilt within half a
+        // step, and the zero padding past the row stays zero.
+        #[test]
+        fn quantised_rows_round_trip_within_half_a_step(
+            row in proptest::collection::vec(-1e4f32..1e4, 1..300),
+            pad in 0usize..9,
+        ) {
+            let mut codes = vec![7u8; row.len() + pad];
+            let (lo, step) = quantise_row(&row, &mut codes);
+            let min = row.iter().copied().fold(f32::INFINITY, f32::min);
+            let max = row.iter().copied().fold(f32::NEG_INFINITY, f32::max);
+            proptest::prop_assert_eq!(lo, min);
+            for (v, &c) in row.iter().zip(&codes) {
+                proptest::prop_assert!(c as i32 <= ACT_MAX);
+                let back = lo as f64 + step as f64 * c as f64;
+                // Half a step, plus f32 rounding of the scaled value.
+                let slack = 0.5 * step as f64 * (1.0 + 1e-4) + 1e-6 * (v.abs() as f64 + 1.0);
+                proptest::prop_assert!((back - *v as f64).abs() <= slack, "{} -> {} ({})", v, c, back);
+            }
+            if max > min {
+                let at = |x: f32| codes[row.iter().position(|&v| v == x).unwrap()] as i32;
+                proptest::prop_assert_eq!(at(min), 0);
+                proptest::prop_assert_eq!(at(max), ACT_MAX);
+            }
+            proptest::prop_assert!(codes[row.len()..].iter().all(|&c| c == 0));
+        }
+    }
+
     #[test]
     fn epilogues_apply_bias_and_gelu_after_scaling() {
         let (m, k, n) = (7, 20, 18);
