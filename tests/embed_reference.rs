@@ -139,22 +139,25 @@ fn vectors_are_the_same_bits_on_one_thread_and_on_three() {
     assert_eq!(with(1), with(3));
 }
 
-#[test]
-fn bf16_weights_cost_little_accuracy() {
-    // Tolerance: bf16 keeps 8 bits of mantissa, so the measured worst cosine to the f32
-    // vectors (0.999988 on this fixture, see notes/encoder-speed.md) is held at >= 0.9995.
+/// Cosine of each fixture text's mean-pooled vector at `precision` to its f32 vector.
+fn cosines_to_f32(precision: Precision) -> Vec<f32> {
     let texts = fixture_texts();
     let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
     let f = encoder_with(Engine::Packed, Precision::F32, TokenPooling::Mean)
         .embed(&refs)
         .unwrap();
-    let b = encoder_with(Engine::Packed, Precision::Bf16, TokenPooling::Mean)
+    let q = encoder_with(Engine::Packed, precision, TokenPooling::Mean)
         .embed(&refs)
         .unwrap();
-    let worst = f
-        .iter()
-        .zip(&b)
-        .map(|(x, y)| cosine(x, y))
+    f.iter().zip(&q).map(|(x, y)| cosine(x, y)).collect()
+}
+
+#[test]
+fn bf16_weights_cost_little_accuracy() {
+    // Tolerance: bf16 keeps 8 bits of mantissa, so the measured worst cosine to the f32
+    // vectors (0.999988 on this fixture, see notes/encoder-speed.md) is held at >= 0.9995.
+    let worst = cosines_to_f32(Precision::Bf16)
+        .into_iter()
         .fold(1.0f32, f32::min);
     println!("bf16: worst cosine to f32 {worst:.6}");
     assert!(worst >= 0.9995, "worst cosine {worst}");
@@ -170,15 +173,7 @@ fn int8_costs_little_accuracy() {
     // activations per row (kerf_kernels::qgemm). Measured over the 27 reference texts: worst
     // cosine to the f32 vectors 0.9922, mean 0.9974 (notes/encoder-speed.md); held at >= 0.99.
     // The integer sums are exact and the same on every CPU, so this figure does not drift.
-    let texts = fixture_texts();
-    let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
-    let f = encoder_with(Engine::Packed, Precision::F32, TokenPooling::Mean)
-        .embed(&refs)
-        .unwrap();
-    let q = encoder_with(Engine::Packed, Precision::Int8, TokenPooling::Mean)
-        .embed(&refs)
-        .unwrap();
-    let cosines: Vec<f32> = f.iter().zip(&q).map(|(x, y)| cosine(x, y)).collect();
+    let cosines = cosines_to_f32(Precision::Int8);
     let worst = cosines.iter().copied().fold(1.0f32, f32::min);
     let mean = cosines.iter().sum::<f32>() / cosines.len() as f32;
     println!("int8: worst cosine to f32 {worst:.6}, mean {mean:.6}");

@@ -253,7 +253,7 @@ fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderF
         max_input_tokens: loaded.info.max_position_embeddings,
         max_batch_tokens: a.encoder.batch_tokens,
         threads: a.encoder.threads,
-        precision: loaded.plan.profile.pool.precision,
+        precision: Default::default(), // each encoding sets its own
         engine: a.encoder.engine,
     };
     let load = move |encoding: Encoding| -> Result<Arc<dyn Embedder>> {

@@ -11,6 +11,7 @@ use clap::{Args, ValueEnum};
 use kerf::compare::engine::{self, Corpus};
 use kerf::compare::refs::{self, Reference};
 use kerf::compare::sweep::{self, Cost, Grid};
+use kerf::embed::Precision;
 use kerf::plan;
 use kerf::profile::Profile;
 
@@ -215,7 +216,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
     let (mut embedded, mut scored) = (0usize, 0usize);
     // Encoding seconds and tokens per precision: int8 runs faster than f32, so each plan's
     // time is estimated from its own precision's measured rate.
-    let mut measured: std::collections::BTreeMap<String, (f64, usize)> = Default::default();
+    let mut measured: Vec<(Precision, f64, usize)> = Vec::new();
     let bar = super::embed::progress_bar(groups.len(), a.encoder.quiet, "sweep");
     let mut interrupted = false;
     for (gi, (_, members)) in groups.iter().enumerate() {
@@ -246,11 +247,14 @@ pub fn run(a: SweepArgs) -> Result<()> {
             &mut |_, _| {},
         )?;
         let after = e.stats();
-        let m = measured
-            .entry(format!("{:?}", first.pool.precision).to_lowercase())
-            .or_default();
-        m.0 += t0.elapsed().as_secs_f64();
-        m.1 += after.real_tokens - before.real_tokens;
+        let (seconds, tokens) = (
+            t0.elapsed().as_secs_f64(),
+            after.real_tokens - before.real_tokens,
+        );
+        match measured.iter_mut().find(|m| m.0 == first.pool.precision) {
+            Some(m) => (m.1, m.2) = (m.1 + seconds, m.2 + tokens),
+            None => measured.push((first.pool.precision, seconds, tokens)),
+        }
         embedded += n_new;
         let padding = after.padded_tokens.saturating_sub(after.real_tokens)
             - before.padded_tokens.saturating_sub(before.real_tokens);
@@ -302,8 +306,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
     // a precision's vectors all came from the cache).
     let rates = measured_rates(&measured);
     for r in &mut rows {
-        let key = format!("{:?}", r.profile.pool.precision).to_lowercase();
-        r.cost.embed_seconds = match rates.iter().find(|(p, _)| *p == key) {
+        r.cost.embed_seconds = match rates.iter().find(|(p, _)| *p == r.profile.pool.precision) {
             Some((_, rate)) => r.cost.input_tokens as f64 / rate,
             None => f64::NAN,
         };
@@ -314,7 +317,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
             if rates.len() == 1 {
                 format!(" · {rate:.0} tokens/s measured")
             } else {
-                format!(" · {p} {rate:.0} tokens/s measured")
+                format!(" · {} {rate:.0} tokens/s measured", p.name())
             }
         })
         .collect();
@@ -359,7 +362,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 "chunk_sets": groups.len(),
                 "chunks_embedded": embedded,
                 "chunks_scored": scored,
-                "tokens_per_second": rates.iter().cloned().collect::<std::collections::BTreeMap<_, _>>(),
+                "tokens_per_second": rates.iter().map(|(p, r)| (p.name(), *r)).collect::<std::collections::BTreeMap<_, _>>(),
                 "sampled": scale != 1.0,
                 "interrupted": interrupted,
             }))?
@@ -410,32 +413,33 @@ pub fn run(a: SweepArgs) -> Result<()> {
     Ok(())
 }
 
-/// Tokens a second per precision, from `(seconds, tokens)` measured while embedding; only
-/// measurements long enough to mean something (half a second) count.
-fn measured_rates(
-    measured: &std::collections::BTreeMap<String, (f64, usize)>,
-) -> Vec<(String, f64)> {
+/// Tokens a second per precision, from `(precision, seconds, tokens)` measured while
+/// embedding; only measurements long enough to mean something (half a second) count.
+fn measured_rates(measured: &[(Precision, f64, usize)]) -> Vec<(Precision, f64)> {
     measured
         .iter()
-        .filter(|(_, (seconds, tokens))| *seconds > 0.5 && *tokens > 0)
-        .map(|(p, (seconds, tokens))| (p.clone(), *tokens as f64 / seconds))
+        .filter(|(_, seconds, tokens)| *seconds > 0.5 && *tokens > 0)
+        .map(|(p, seconds, tokens)| (*p, *tokens as f64 / seconds))
         .collect()
 }
 
 #[cfg(test)]
 mod tests {
     use super::measured_rates;
+    use kerf::embed::Precision;
 
     #[test]
     fn rates_are_per_precision_and_skip_short_measurements() {
-        let mut m = std::collections::BTreeMap::new();
-        m.insert("f32".to_string(), (2.0, 10_000));
-        m.insert("int8".to_string(), (1.0, 8_000));
-        m.insert("bf16".to_string(), (0.2, 1_000)); // too short to trust
-        m.insert("f16".to_string(), (3.0, 0)); // everything came from the cache
+        let m = [
+            (Precision::F32, 2.0, 10_000),
+            (Precision::Int8, 1.0, 8_000),
+            (Precision::Bf16, 0.2, 1_000), // too short to trust
+        ];
         assert_eq!(
             measured_rates(&m),
-            vec![("f32".to_string(), 5_000.0), ("int8".to_string(), 8_000.0)]
+            vec![(Precision::F32, 5_000.0), (Precision::Int8, 8_000.0)]
         );
+        // Everything from the cache: no tokens through the encoder, no rate.
+        assert_eq!(measured_rates(&[(Precision::F32, 3.0, 0)]), vec![]);
     }
 }

@@ -147,7 +147,8 @@ pub fn plan_name(p: &Profile) -> String {
     }
     n.push_str(&format!("-{tokens}-{}", p.pool.chunks.name()));
     if p.pool.precision != Precision::F32 {
-        n.push_str(&format!("-{:?}", p.pool.precision).to_lowercase());
+        n.push('-');
+        n.push_str(p.pool.precision.name());
     }
     n
 }

@@ -42,6 +42,20 @@ pub enum Precision {
     Int8,
 }
 
+impl Precision {
+    /// Every precision, widest first.
+    pub const ALL: [Precision; 3] = [Precision::F32, Precision::Bf16, Precision::Int8];
+
+    /// The name profiles use.
+    pub fn name(self) -> &'static str {
+        match self {
+            Precision::F32 => "f32",
+            Precision::Bf16 => "bf16",
+            Precision::Int8 => "int8",
+        }
+    }
+}
+
 /// Which forward pass runs the model.
 #[derive(
     Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, Hash,

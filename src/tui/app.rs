@@ -34,7 +34,6 @@ pub const OVERLAP_STEPS: [usize; 10] = [0, 8, 16, 32, 48, 64, 96, 128, 192, 256]
 pub const MIN_CHUNK_STEPS: [usize; 7] = [0, 8, 16, 32, 48, 64, 96];
 const TOKEN_POOLINGS: [TokenPooling; 3] =
     [TokenPooling::Mean, TokenPooling::Cls, TokenPooling::Max];
-const PRECISIONS: [Precision; 3] = [Precision::F32, Precision::Bf16, Precision::Int8];
 
 /// What the explorer starts from.
 pub struct AppInit {
@@ -531,7 +530,7 @@ impl App {
             Action::PrecisionNext | Action::PrecisionPrev => {
                 let mut p = self.current.plan.profile.clone();
                 p.pool.precision = cycle(
-                    &PRECISIONS,
+                    &Precision::ALL,
                     p.pool.precision,
                     matches!(action, Action::PrecisionNext),
                 );

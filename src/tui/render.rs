@@ -167,10 +167,7 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
         ("min chunk ", p.cut.min_chunk.to_string()),
         ("tokens ", format!("{:?}", p.pool.tokens).to_lowercase()),
         ("chunks ", p.pool.chunks.name().to_string()),
-        (
-            "precision ",
-            format!("{:?}", p.pool.precision).to_lowercase(),
-        ),
+        ("precision ", p.pool.precision.name().to_string()),
     ] {
         plan.push(sep());
         plan.extend(kv(k, v));

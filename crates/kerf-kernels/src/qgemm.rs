@@ -80,11 +80,10 @@ impl PackedI8 {
             let max = w.iter().fold(0f32, |m, v| m.max(v.abs()));
             let s = if max > 0.0 { max / W_MAX as f32 } else { 1.0 };
             scale[j] = s;
-            let panel = (j / NR) * k_padded * NR;
             for (p, v) in w.iter().enumerate() {
                 let q = (v / s).round().clamp(-W_MAX as f32, W_MAX as f32) as i32;
                 code_sum[j] += q;
-                codes[panel + ((p / 4) * NR + j % NR) * 4 + p % 4] = q as i8;
+                codes[code_index(k_padded, p, j)] = q as i8;
             }
         }
         Self {
@@ -109,15 +108,20 @@ impl PackedI8 {
 
     /// The value the product uses for weight (`inner`, `output`): its code times its scale.
     pub fn dequantised(&self, inner: usize, output: usize) -> f32 {
-        let panel = (output / NR) * self.k_padded * NR;
-        let q = self.codes[panel + ((inner / 4) * NR + output % NR) * 4 + inner % 4];
-        q as f32 * self.scale[output]
+        self.codes[code_index(self.k_padded, inner, output)] as f32 * self.scale[output]
     }
 
+    /// The panel holding columns `jr..jr + NR`.
     fn panel(&self, jr: usize) -> &[i8] {
-        let start = (jr / NR) * self.k_padded * NR;
+        let start = code_index(self.k_padded, 0, jr);
         &self.codes[start..start + self.k_padded * NR]
     }
+}
+
+/// Where the code for (`inner`, `output`) sits: the one statement of the layout, for the
+/// packer and both readers.
+fn code_index(k_padded: usize, inner: usize, output: usize) -> usize {
+    (output / NR) * k_padded * NR + ((inner / 4) * NR + output % NR) * 4 + inner % 4
 }
 
 /// One activation row's codes: `x ~ lo + step * u`, `u` in `[0, ACT_MAX]` rounded to nearest,
@@ -178,9 +182,7 @@ pub fn matmul_i8(
     assert_eq!(a.len() % k, 0, "activation rows");
     let m = a.len() / k;
     assert_eq!(dst.len(), m * n, "destination shape");
-    if let Epilogue::Bias(b) | Epilogue::BiasGelu(b) = epilogue {
-        assert_eq!(b.len(), n, "bias length");
-    }
+    epilogue.check(n);
     if m == 0 || n == 0 {
         return;
     }
@@ -223,32 +225,35 @@ fn block_i8(
     let tiles = mc.div_ceil(MR);
     s.codes.clear();
     s.codes.resize(tiles * MR * kp, 0);
-    #[cfg(target_arch = "x86_64")]
-    let simd = V3::try_new();
-    #[cfg(not(target_arch = "x86_64"))]
-    let simd: Option<std::convert::Infallible> = None;
-    match simd {
-        #[cfg(target_arch = "x86_64")]
-        Some(simd) => simd.vectorize(|| {
-            quantise_block(rows, k, kp, s);
-            all_tiles(dst, rhs, s, |sliver, panel| {
-                tile_avx2(simd, sliver, kp, panel)
-            })
-        }),
-        #[cfg(not(target_arch = "x86_64"))]
-        Some(never) => match never {},
-        None => {
-            quantise_block(rows, k, kp, s);
-            all_tiles(dst, rhs, s, |sliver, panel| {
-                tile_portable(sliver, kp, panel)
-            })
-        }
+    if !quantise_and_tile_avx2(dst, rows, rhs, s) {
+        quantise_block(rows, k, kp, s);
+        all_tiles(dst, rhs, s, |sliver, panel| {
+            tile_portable(sliver, kp, panel)
+        });
     }
-    match epilogue {
-        Epilogue::Plain => {}
-        Epilogue::Bias(b) => crate::add_bias(dst, b),
-        Epilogue::BiasGelu(b) => crate::add_bias_gelu(dst, b),
-    }
+    epilogue.apply(dst);
+}
+
+/// [`quantise_block`] and [`all_tiles`] on the AVX2 tile, compiled for AVX2, when the CPU has
+/// it; `false` (nothing done) when it does not.
+#[cfg(target_arch = "x86_64")]
+fn quantise_and_tile_avx2(dst: &mut [f32], rows: &[f32], rhs: &PackedI8, s: &mut Scratch) -> bool {
+    let Some(simd) = V3::try_new() else {
+        return false;
+    };
+    let (k, kp) = (rhs.k, rhs.k_padded);
+    simd.vectorize(|| {
+        quantise_block(rows, k, kp, s);
+        all_tiles(dst, rhs, s, |sliver, panel| {
+            tile_avx2(simd, sliver, kp, panel)
+        });
+    });
+    true
+}
+
+#[cfg(not(target_arch = "x86_64"))]
+fn quantise_and_tile_avx2(_: &mut [f32], _: &[f32], _: &PackedI8, _: &mut Scratch) -> bool {
+    false
 }
 
 /// Codes and `(lo, step)` of every row of a block.

@@ -115,14 +115,6 @@ impl PackedRhs {
         self.n
     }
 
-    /// Apply `f` to every stored weight (padding stays zero if `f(0) == 0`), e.g. to round the
-    /// weights to a narrower type.
-    pub fn map_weights(&mut self, f: impl Fn(f32) -> f32) {
-        for w in &mut self.data {
-            *w = f(*w);
-        }
-    }
-
     /// The `KC x NR` panel `jr / NR` of the block starting at inner row `pc`.
     fn panel(&self, pc: usize, kc: usize, jr: usize) -> &[f32] {
         let start = pc * self.n_padded + jr * kc;
@@ -139,6 +131,24 @@ pub enum Epilogue<'a> {
     Bias(&'a [f32]),
     /// `C = gelu(A B + bias)`.
     BiasGelu(&'a [f32]),
+}
+
+impl Epilogue<'_> {
+    /// Panics unless a bias (if any) has one value per output column.
+    pub(crate) fn check(self, outputs: usize) {
+        if let Epilogue::Bias(b) | Epilogue::BiasGelu(b) = self {
+            assert_eq!(b.len(), outputs, "bias length");
+        }
+    }
+
+    /// Apply to finished output rows (`dst` whole rows, one bias value per column).
+    pub(crate) fn apply(self, dst: &mut [f32]) {
+        match self {
+            Epilogue::Plain => {}
+            Epilogue::Bias(b) => crate::add_bias(dst, b),
+            Epilogue::BiasGelu(b) => crate::add_bias_gelu(dst, b),
+        }
+    }
 }
 
 /// `dst = epilogue(a * rhs)` where `a` is row-major `m x rhs.inner()` and `dst` row-major
@@ -221,9 +231,7 @@ pub fn matmul_packed_strided(
         "activation width differs from the inner dimension"
     );
     assert_eq!(dst.len(), m * n, "destination shape");
-    if let Epilogue::Bias(b) | Epilogue::BiasGelu(b) = epilogue {
-        assert_eq!(b.len(), n, "bias length");
-    }
+    epilogue.check(n);
     if m == 0 || n == 0 {
         return;
     }
@@ -301,11 +309,7 @@ fn matmul_block<'a>(
         }
     }
     // The block's rows are finished and still in cache: apply the epilogue to them.
-    match epilogue {
-        Epilogue::Plain => {}
-        Epilogue::Bias(b) => crate::add_bias(dst, b),
-        Epilogue::BiasGelu(b) => crate::add_bias_gelu(dst, b),
-    }
+    epilogue.apply(dst);
 }
 
 /// The 6x16 register tile of `rows * panel` over `kc` inner steps: `rows[r][p]` is row `r`'s
