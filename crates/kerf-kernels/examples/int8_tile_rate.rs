@@ -74,7 +74,6 @@ mod probe {
 #[cfg(target_arch = "x86_64")]
 fn main() {
     use probe::{KC, NR};
-    use std::time::Instant;
     if !(is_x86_feature_detected!("avx2") && is_x86_feature_detected!("fma")) {
         println!("this CPU has no AVX2+FMA: nothing to measure");
         return;
@@ -128,44 +127,11 @@ fn main() {
         }
     }
 
-    const TILES: usize = 400_000;
-    // Best of five: the machine is shared and noisy. The operands go through black_box on
-    // every call so no tile can be hoisted out of the loop.
-    let rate = |rows: usize, f: &mut dyn FnMut()| {
-        (0..5)
-            .map(|_| {
-                let t = Instant::now();
-                for _ in 0..TILES {
-                    f();
-                }
-                (TILES * rows * KC * NR) as f64 / t.elapsed().as_secs_f64() / 1e9
-            })
-            .fold(0f64, f64::max)
-    };
-    let f32_rate = rate(6, &mut || unsafe {
-        probe::f32_tile(
-            std::hint::black_box(&a32),
-            std::hint::black_box(&panel32),
-            &mut out32,
-        );
-        std::hint::black_box(&out32);
-    });
-    let i8_6 = rate(6, &mut || unsafe {
-        probe::i8_tile::<6>(
-            std::hint::black_box(&a8),
-            std::hint::black_box(&panel8),
-            &mut out_i,
-        );
-        std::hint::black_box(&out_i);
-    });
-    let i8_4 = rate(4, &mut || unsafe {
-        probe::i8_tile::<4>(
-            std::hint::black_box(&a8),
-            std::hint::black_box(&panel8),
-            &mut out_i,
-        );
-        std::hint::black_box(&out_i);
-    });
+    // SAFETY (the three calls): AVX2 and FMA were detected above; the slices are the sizes
+    // the tiles assert.
+    let f32_rate = unsafe { best_rate(6, &a32[..], &panel32[..], &mut out32[..], probe::f32_tile) };
+    let i8_6 = unsafe { best_rate(6, &a8[..], &panel8[..], &mut out_i[..], probe::i8_tile::<6>) };
+    let i8_4 = unsafe { best_rate(4, &a8[..], &panel8[..], &mut out_i[..], probe::i8_tile::<4>) };
     println!("one thread, tiles over {KC} inner steps in L1, billions of multiply-accumulates a second (best of five):");
     println!("fp32 6x16 (kerf's tile)   {f32_rate:6.1}  1.00x");
     println!(
@@ -176,6 +142,34 @@ fn main() {
         "int8 4x16                 {i8_4:6.1}  {:.2}x",
         i8_4 / f32_rate
     );
+}
+
+/// Best of five timings of 400,000 calls of `tile` (`rows` x 16 outputs over `KC` steps), in
+/// billions of multiply-accumulates a second: the machine is shared and noisy. The operands
+/// go through black_box on every call so no tile can be hoisted out of the loop.
+///
+/// # Safety
+/// `tile` must be safe to call on this CPU with these operands.
+#[cfg(target_arch = "x86_64")]
+unsafe fn best_rate<A: ?Sized, B: ?Sized, O: ?Sized>(
+    rows: usize,
+    a: &A,
+    b: &B,
+    out: &mut O,
+    tile: unsafe fn(&A, &B, &mut O),
+) -> f64 {
+    use std::time::Instant;
+    const TILES: usize = 400_000;
+    (0..5)
+        .map(|_| {
+            let t = Instant::now();
+            for _ in 0..TILES {
+                tile(std::hint::black_box(a), std::hint::black_box(b), out);
+                std::hint::black_box(&*out);
+            }
+            (TILES * rows * probe::KC * probe::NR) as f64 / t.elapsed().as_secs_f64() / 1e9
+        })
+        .fold(0f64, f64::max)
 }
 
 #[cfg(not(target_arch = "x86_64"))]
