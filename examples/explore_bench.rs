@@ -9,8 +9,8 @@ use std::time::Instant;
 use kerf::compare::engine::Corpus;
 use kerf::corpus::Document;
 use kerf::profile::{Boundary, Profile};
-use kerf::tui::action::Pane;
-use kerf::tui::{render, Action, App, AppInit};
+use kerf_app::tui::action::Pane;
+use kerf_app::tui::{render, Action, App, AppInit};
 use ratatui::backend::TestBackend;
 use ratatui::Terminal;
 
@@ -113,7 +113,8 @@ fn bench(name: &str, docs: Vec<Document>) {
     let mut cut_ms = Vec::new();
     for _ in 0..10 {
         let t = Instant::now();
-        let st = kerf::tui::app::cut_state(&app.corpus, app.counter(), app.current.plan.clone());
+        let st =
+            kerf_app::tui::plans::cut_state(&app.corpus, app.counter(), app.current.plan.clone());
         cut_ms.push(t.elapsed().as_secs_f64() * 1e3);
         drop(st);
     }

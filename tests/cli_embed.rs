@@ -73,11 +73,11 @@ fn killed_job_resumes_to_identical_output() {
         .current_dir(d)
         .spawn()
         .unwrap();
-    let total = {
-        let m: serde_json::Value =
-            serde_json::from_slice(&std::fs::read(d.join("whole/manifest.json")).unwrap()).unwrap();
-        m["counts"]["unique_chunk_texts"].as_u64().unwrap() as usize
-    };
+    // Distinct vectors the whole job needs: the rows the uninterrupted run left in its cache.
+    let total = rusqlite::Connection::open(d.join("cache-a.sqlite"))
+        .unwrap()
+        .query_row("SELECT COUNT(*) FROM vectors", [], |r| r.get::<_, i64>(0))
+        .unwrap() as usize;
     let mut stored_at_kill = 0;
     for _ in 0..6000 {
         std::thread::sleep(std::time::Duration::from_millis(10));
@@ -152,13 +152,13 @@ fn outputs_read_back_and_match_the_manifest() {
     for (name, f) in m["files"].as_object().unwrap() {
         let bytes = std::fs::read(d.join("out").join(name)).unwrap();
         assert_eq!(
-            kerf::export::sha256_hex(&bytes),
+            kerf::store::sha256_hex(&bytes),
             f["sha256"].as_str().unwrap(),
             "{name}"
         );
     }
     let (rows, cols, data) =
-        kerf::export::read_npy_f32(&std::fs::read(d.join("out/chunk_vectors.npy")).unwrap())
+        kerf::store::read_npy_f32(&std::fs::read(d.join("out/chunk_vectors.npy")).unwrap())
             .unwrap();
     let chunks = std::fs::read_to_string(d.join("out/chunks.jsonl")).unwrap();
     assert_eq!(rows, chunks.lines().count());
@@ -287,7 +287,7 @@ fn int8_profile_embeds_its_own_vectors_close_to_f32() {
         let m: serde_json::Value =
             serde_json::from_slice(&std::fs::read(d.join(out).join("manifest.json")).unwrap())
                 .unwrap();
-        let (rows, cols, data) = kerf::export::read_npy_f32(
+        let (rows, cols, data) = kerf::store::read_npy_f32(
             &std::fs::read(d.join(out).join("chunk_vectors.npy")).unwrap(),
         )
         .unwrap();

@@ -82,7 +82,7 @@ fn debian_faq_retrieval() {
     for ((n, body), c) in chapters.iter().zip(fx["chapters"].as_array().unwrap()) {
         assert_eq!(*n as u64, c["number"].as_u64().unwrap());
         assert_eq!(
-            kerf::export::sha256_hex(body.as_bytes()),
+            kerf::store::sha256_hex(body.as_bytes()),
             c["body_sha256"].as_str().unwrap(),
             "chapter {n} parsed as the reference script does"
         );

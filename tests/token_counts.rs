@@ -34,7 +34,7 @@ fn counts_match_the_pure_python_wordpiece() {
             std::fs::read_to_string(common::repo().join(name)).unwrap()
         };
         assert_eq!(
-            kerf::export::sha256_hex(text.as_bytes()),
+            kerf::store::sha256_hex(text.as_bytes()),
             t["sha256"].as_str().unwrap(),
             "{name} changed since the fixture was made: rerun tests/reference/token_counts.py"
         );

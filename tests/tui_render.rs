@@ -6,9 +6,9 @@ use kerf::compare::engine::Corpus;
 use kerf::corpus::{Document, Notice};
 use kerf::embed::{Embedder, HashEmbedder};
 use kerf::profile::Profile;
-use kerf::tui::action::Pane;
-use kerf::tui::worker::{Report, Request};
-use kerf::tui::{render, Action, App, AppInit};
+use kerf_app::tui::action::Pane;
+use kerf_app::tui::worker::{Report, Request};
+use kerf_app::tui::{render, Action, App, AppInit};
 use ratatui::backend::TestBackend;
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
@@ -325,7 +325,7 @@ fn keys_and_mouse_map_to_actions() {
     use crossterm::event::{
         Event, KeyCode, KeyEvent, KeyModifiers, MouseButton, MouseEvent, MouseEventKind,
     };
-    use kerf::tui::keys::action_for;
+    use kerf_app::tui::keys::action_for;
     let mut app = app_with(demo_docs(), true, (120, 40));
     let key = |c: char| Event::Key(KeyEvent::new(KeyCode::Char(c), KeyModifiers::NONE));
     let mouse = |kind, column, row| {
@@ -373,4 +373,52 @@ fn keys_and_mouse_map_to_actions() {
     app.update(Action::Resize(40, 12));
     assert_eq!(action_for(&key('O'), &app), None);
     assert_eq!(action_for(&key('q'), &app), Some(Action::Quit));
+}
+
+/// The header shows the whole plan at 100 columns, whatever its values: every setting of the
+/// widest plan the keys can make is on the first row.
+#[test]
+fn header_shows_the_whole_plan_at_100_columns() {
+    use kerf::profile::{Boundary, ChunkPooling, Precision};
+    let mut p = Profile::default();
+    p.cut.window = 512;
+    p.cut.boundary = Boundary::Paragraph;
+    p.cut.overlap = 256;
+    p.cut.min_chunk = 96;
+    p.pool.chunks = ChunkPooling::SoftCentroid;
+    p.pool.precision = Precision::Int8;
+    for width in [100usize, 120, 160] {
+        let (line, _) = render::plan_line(&p, "all-MiniLM-L6-v2", width);
+        let text: String = line.spans.iter().map(|s| s.content.as_ref()).collect();
+        assert!(text.chars().count() <= width, "{width}: {text}");
+        for v in [
+            "512",
+            "paragraph",
+            "256",
+            "96",
+            "mean",
+            "soft-centroid",
+            "int8",
+        ] {
+            assert!(text.contains(v), "{width}: `{v}` missing from {text}");
+        }
+    }
+    // At 160 columns there is room for the model's name too.
+    let (line, shown) = render::plan_line(&p, "all-MiniLM-L6-v2", 160);
+    let text: String = line.spans.iter().map(|s| s.content.as_ref()).collect();
+    assert!(shown && text.contains("all-MiniLM-L6-v2"), "{text}");
+    // Drawn at 100x30, the model moves to the third row rather than vanish.
+    let app = app_with(demo_docs(), false, (100, 30));
+    let s = screen(&app, 100, 30);
+    assert!(
+        s[0].contains("precision f32") || s[0].contains(" f32"),
+        "{}",
+        s[0]
+    );
+    assert!(
+        s[0].contains("all-MiniLM") || s[2].contains("all-MiniLM"),
+        "{}\n{}",
+        s[0],
+        s[2]
+    );
 }

@@ -1,16 +1,12 @@
 //! `kerf embed`: the embedding job, from the same profile that was planned.
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use anyhow::{Context, Result};
 use clap::{Args, ValueEnum};
 
-use kerf::export;
-use kerf::job;
-use kerf::pool::{self, ChunkPooling};
-use kerf::records::ChunkRecord;
-use kerf::split;
-use kerf::survey;
+use kerf::job::{EmbedJob, JobSettings};
+use kerf::store::{self, FolderSink};
 
 use super::{load_plan, report_notices, InputArgs, PlanArgs};
 
@@ -95,9 +91,14 @@ pub struct EmbedArgs {
     /// Vector file format.
     #[arg(long, value_enum, default_value = "npy")]
     pub format: Format,
+    /// Encoder-input tokens per block: the job cuts, embeds and writes a block at a time, so
+    /// memory holds one block whatever the corpus size.
+    #[arg(long, default_value_t = JobSettings::default().block_tokens)]
+    pub block_tokens: usize,
 }
 
-/// A progress bar on a terminal, nothing otherwise.
+/// A progress bar on a terminal, nothing otherwise; with a total of 0 (a stream of unknown
+/// length) a counter with its rate instead of a bar.
 pub fn progress_bar(
     total_tokens: usize,
     quiet: bool,
@@ -107,32 +108,21 @@ pub fn progress_bar(
     if quiet || !std::io::stderr().is_terminal() {
         return None;
     }
-    let bar = indicatif::ProgressBar::new(total_tokens as u64);
-    bar.set_style(
-        indicatif::ProgressStyle::with_template(&format!(
-            "{what} {{bar:30}} {{pos}}/{{len}} tokens · {{per_sec}} · eta {{eta}} · {{msg}}"
-        ))
-        .expect("valid template"),
-    );
-    Some(bar)
-}
-
-fn fresh_dir_beside(target: &Path) -> Result<PathBuf> {
-    let parent = match target.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
+    let (bar, template) = if total_tokens == 0 {
+        (
+            indicatif::ProgressBar::new_spinner(),
+            format!("{what} {{spinner}} {{pos}} tokens · {{per_sec}} · {{elapsed}} · {{msg}}"),
+        )
+    } else {
+        (
+            indicatif::ProgressBar::new(total_tokens as u64),
+            format!(
+                "{what} {{bar:30}} {{pos}}/{{len}} tokens · {{per_sec}} · eta {{eta}} · {{msg}}"
+            ),
+        )
     };
-    let name = target
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "out".into());
-    let tmp = parent.join(format!(".{name}.partial-{}", std::process::id()));
-    if tmp.exists() {
-        std::fs::remove_dir_all(&tmp)
-            .with_context(|| format!("removing stale {}", tmp.display()))?;
-    }
-    std::fs::create_dir_all(&tmp).with_context(|| format!("creating {}", tmp.display()))?;
-    Ok(tmp)
+    bar.set_style(indicatif::ProgressStyle::with_template(&template).expect("valid template"));
+    Some(bar)
 }
 
 pub fn run(a: EmbedArgs) -> Result<()> {
@@ -140,197 +130,56 @@ pub fn run(a: EmbedArgs) -> Result<()> {
         anyhow::bail!("kerf embed needs --profile FILE (see profiles/ for ready-made plans)");
     }
     if a.out.exists() && !a.force {
-        anyhow::bail!(
-            "{} already exists (pass --force to replace it)",
-            a.out.display()
-        );
+        return Err(kerf::store::StoreError::Exists {
+            path: a.out.clone(),
+        }
+        .into());
     }
     let loaded = load_plan(&a.plan, |_| unreachable!("a profile was given"))?;
-    let (counter, plan) = (&loaded.counter, &loaded.plan);
     let embedder = super::load_embedder(&loaded, &a.encoder)?;
     let cache = a.encoder.open_cache()?;
-
-    // Cut everything first: the job's batches are a function of the whole chunk set.
+    let job = EmbedJob {
+        plan: &loaded.plan,
+        counter: &loaded.counter,
+        embedder: embedder.as_ref(),
+        cache: cache.as_ref(),
+        settings: JobSettings {
+            block_tokens: a.block_tokens,
+            batch_tokens: a.encoder.batch_tokens,
+        },
+    };
+    let format = match a.format {
+        Format::Npy => store::Format::Npy,
+        Format::Parquet => store::Format::Parquet,
+    };
+    let mut sink = FolderSink::create(&a.out, a.force, format, embedder.dim())?;
     let mut stream = a.input.open()?;
-    let recount = |t: &str| counter.count_content(t).unwrap_or(usize::MAX);
-    let mut docs: Vec<(String, Vec<ChunkRecord>, Vec<usize>)> = Vec::new();
-    kerf::process_in_order(
-        stream.by_ref().map(|r| r.map_err(anyhow::Error::from)),
-        64,
-        |doc| {
-            let an = survey::analyze(&doc.text, counter)?;
-            let chunks = split::cut(&doc.text, &an.tokens, &an.segments, &plan.cut, &recount);
-            let new_tokens = kerf::compare::engine::new_tokens(&chunks);
-            Ok((
-                chunks
-                    .iter()
-                    .map(|c| ChunkRecord::new(doc, c, plan))
-                    .collect::<Vec<_>>(),
-                new_tokens,
-            ))
-        },
-        |doc, (recs, newt)| {
-            docs.push((doc.id, recs, newt));
-            Ok(())
-        },
-    )?;
-    report_notices(&stream.notices);
-    let all: Vec<&ChunkRecord> = docs.iter().flat_map(|d| d.1.iter()).collect();
-    let batch_plan = job::plan_batches(
-        all.iter().map(|r| (r.text.clone(), r.tokens)),
-        a.encoder.batch_tokens,
-    );
-    let bar = progress_bar(batch_plan.tokens.iter().sum(), a.encoder.quiet, "embedding");
-    let (unique_vectors, report) = job::run(
-        &batch_plan,
-        &plan.profile.cut.prefix,
-        embedder.as_ref(),
-        cache.as_ref(),
-        &mut |p| {
-            if let Some(b) = &bar {
-                b.set_position(p.tokens_done as u64);
-                b.set_message(format!("{}/{} chunks", p.inputs_done, p.inputs_total));
-            }
-        },
-    )?;
+    let bar = progress_bar(0, a.encoder.quiet, "embedding");
+    let report = job.run(stream.by_ref(), &mut sink, &mut |p| {
+        if let Some(b) = &bar {
+            b.set_position(p.tokens as u64);
+            b.set_message(format!(
+                "{} documents · {} chunks · {} embedded, {} from cache",
+                p.documents, p.chunks, p.cache.embedded, p.cache.cached
+            ));
+        }
+    })?;
     if let Some(b) = bar {
         b.finish_and_clear();
     }
-    let dim = embedder.dim();
-    let chunk_vectors: Vec<&Vec<f32>> = batch_plan
-        .input_of_chunk
-        .iter()
-        .map(|&i| &unique_vectors[i])
-        .collect();
-
-    // Document vectors by the profile's aggregation (scorings have none: mean stands in).
-    let how = plan.profile.pool.chunks;
-    let doc_how = if how.is_scoring() {
-        ChunkPooling::Mean
-    } else {
-        how
-    };
-    let mut at = 0;
-    let mut doc_ids: Vec<&str> = Vec::new();
-    let mut doc_matrix: Vec<f32> = Vec::new();
-    for (id, recs, newt) in &docs {
-        let views: Vec<&[f32]> = chunk_vectors[at..at + recs.len()]
-            .iter()
-            .map(|v| v.as_slice())
-            .collect();
-        at += recs.len();
-        if let Some(v) = pool::doc_vector(doc_how, &views, newt, plan.profile.pool.temperature) {
-            doc_ids.push(id);
-            doc_matrix.extend(v);
-        }
-    }
-    let chunk_matrix: Vec<f32> = chunk_vectors
-        .iter()
-        .flat_map(|v| v.iter().copied())
-        .collect();
-
-    // Write everything into a fresh folder beside the target; manifest last; then move it in.
-    let tmp = fresh_dir_beside(&a.out)?;
-    let result = (|| -> Result<()> {
-        let mut files = serde_json::Map::new();
-        let mut put = |name: &str, bytes: Vec<u8>| -> Result<()> {
-            let sum = export::write_file(&tmp, name, &bytes)
-                .with_context(|| format!("writing {}", a.out.join(name).display()))?;
-            files.insert(
-                name.into(),
-                serde_json::json!({ "sha256": sum, "bytes": bytes.len() }),
-            );
-            Ok(())
-        };
-        let mut jsonl = Vec::new();
-        for r in &all {
-            serde_json::to_writer(&mut jsonl, r)?;
-            jsonl.push(b'\n');
-        }
-        put("chunks.jsonl", jsonl)?;
-        match a.format {
-            Format::Npy => {
-                put(
-                    "chunk_vectors.npy",
-                    export::npy_f32(all.len(), dim, &chunk_matrix),
-                )?;
-                put(
-                    "doc_vectors.npy",
-                    export::npy_f32(doc_ids.len(), dim, &doc_matrix),
-                )?;
-                put("doc_ids.json", serde_json::to_vec_pretty(&doc_ids)?)?;
-            }
-            Format::Parquet => {
-                let rows = export::ChunkRows {
-                    doc: all.iter().map(|r| r.doc.as_str()).collect(),
-                    chunk: all.iter().map(|r| r.chunk as u32).collect(),
-                    byte_start: all.iter().map(|r| r.bytes[0] as u64).collect(),
-                    byte_end: all.iter().map(|r| r.bytes[1] as u64).collect(),
-                    tokens: all.iter().map(|r| r.tokens as u32).collect(),
-                    text: all.iter().map(|r| r.text.as_str()).collect(),
-                };
-                put(
-                    "chunks.parquet",
-                    export::chunks_parquet(&rows, dim, &chunk_matrix)
-                        .map_err(anyhow::Error::msg)?,
-                )?;
-                put(
-                    "documents.parquet",
-                    export::docs_parquet(&doc_ids, dim, &doc_matrix).map_err(anyhow::Error::msg)?,
-                )?;
-            }
-        }
-        let manifest = serde_json::json!({
-            "kerf_version": env!("CARGO_PKG_VERSION"),
-            "profile": plan.profile,
-            "profile_toml": plan.profile.to_toml(),
-            "resolved": { "window": plan.window, "specials": plan.specials, "prefix_tokens": plan.prefix_tokens, "budget": plan.budget() },
-            "model": { "folder": loaded.info.dir, "fingerprint": embedder.fingerprint(), "dimensions": dim },
-            "document_vectors": if how.is_scoring() {
-                format!("mean of chunk vectors ({} is a scoring with no single document vector)", how.name())
-            } else { how.name().to_string() },
-            "counts": {
-                "documents": docs.len(),
-                "documents_with_vectors": doc_ids.len(),
-                "chunks": all.len(),
-                "unique_chunk_texts": batch_plan.texts.len(),
-                "input_tokens": all.iter().map(|r| r.tokens).sum::<usize>(),
-            },
-            "files": files,
-        });
-        export::write_file(
-            &tmp,
-            "manifest.json",
-            &serde_json::to_vec_pretty(&manifest)?,
-        )?;
-        Ok(())
-    })();
-    if let Err(e) = result {
-        let _ = std::fs::remove_dir_all(&tmp);
-        return Err(e);
-    }
-    if a.out.exists() {
-        let old = tmp.with_extension("old");
-        std::fs::rename(&a.out, &old)
-            .with_context(|| format!("moving the old {} aside", a.out.display()))?;
-        std::fs::rename(&tmp, &a.out)
-            .with_context(|| format!("moving the output into {}", a.out.display()))?;
-        let _ = std::fs::remove_dir_all(&old);
-    } else {
-        std::fs::rename(&tmp, &a.out)
-            .with_context(|| format!("moving the output into {}", a.out.display()))?;
-    }
+    report_notices(&stream.notices);
+    sink.finish(job.manifest(&loaded.info.dir, &report))?;
     let mut err = std::io::stderr().lock();
     writeln!(
         err,
         "kerf: {} chunks of {} documents → {} ({} embedded, {} from cache, {} tokens through the encoder in {:.1} s)",
-        all.len(),
-        docs.len(),
+        report.chunks,
+        report.documents,
         a.out.display(),
-        report.embedded_inputs,
-        report.cached_inputs,
-        report.embedded_tokens,
-        report.encoder_seconds
+        report.cache.embedded,
+        report.cache.cached,
+        report.cache.embedded_tokens,
+        report.cache.encoder_seconds
     )?;
     Ok(())
 }

@@ -1,5 +1,5 @@
 //! `kerf explore`: load corpus, model and references, set up the terminal, run the event loop.
-//! Everything the explorer does lives in `kerf::tui`; this file only wires it to a real
+//! Everything the explorer does lives in `crate::tui`; this file only wires it to a real
 //! terminal and makes sure the terminal is restored on every way out, a panic included.
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -14,14 +14,14 @@ use crossterm::terminal::{self, EnterAlternateScreen, LeaveAlternateScreen};
 use ratatui::backend::CrosstermBackend;
 use ratatui::Terminal;
 
+use crate::tui::worker::{EmbedderFactory, Encoding, Worker};
+use crate::tui::{keys, render, Action, App, AppInit};
 use kerf::compare::engine::Corpus;
 use kerf::compare::refs;
 use kerf::compare::sweep::plan_name;
 use kerf::corpus::{Document, InputOptions, Notice};
 use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, HashEmbedder};
 use kerf::profile::Profile;
-use kerf::tui::worker::{EmbedderFactory, Encoding, Worker};
-use kerf::tui::{keys, render, Action, App, AppInit};
 
 use super::embed::EncoderArgs;
 use super::{load_plan, InputArgs, PlanArgs};

@@ -164,7 +164,7 @@ pub fn report_notices(notices: &[kerf::corpus::Notice]) {
 /// Write to stdout, or atomically to a file.
 pub fn open_output(out: Option<&Path>, force: bool) -> Result<Box<dyn OutputSink>> {
     Ok(match out {
-        Some(p) => Box::new(kerf::output::AtomicFile::create(p, force)?),
+        Some(p) => Box::new(kerf::store::AtomicFile::create(p, force)?),
         None => Box::new(std::io::BufWriter::new(std::io::stdout().lock())),
     })
 }
@@ -175,7 +175,7 @@ pub trait OutputSink: Write {
     fn finish(self: Box<Self>) -> Result<()>;
 }
 
-impl OutputSink for kerf::output::AtomicFile {
+impl OutputSink for kerf::store::AtomicFile {
     fn finish(self: Box<Self>) -> Result<()> {
         Ok((*self).commit()?)
     }
@@ -192,6 +192,51 @@ fn is_broken_pipe(e: &anyhow::Error) -> bool {
         c.downcast_ref::<std::io::Error>()
             .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
     })
+}
+
+/// What the user can do about a library error, in this binary's flags (the library's messages
+/// say what is wrong; only the faces know their options).
+fn hint(e: &(dyn std::error::Error + 'static)) -> &'static str {
+    use kerf::cache::CacheError;
+    use kerf::corpus::CorpusError;
+    use kerf::job::JobError;
+    use kerf::store::StoreError;
+    fn corpus(e: &CorpusError) -> &'static str {
+        match e {
+            CorpusError::Utf8 { .. } => " (pass --lossy to replace bad bytes with U+FFFD)",
+            CorpusError::Jsonl { reason, .. } if reason.starts_with("no field") => {
+                " (choose another with --text-field)"
+            }
+            _ => "",
+        }
+    }
+    fn cache(e: &CacheError) -> &'static str {
+        match e {
+            CacheError::Corrupt { .. } => "; pass --rebuild-cache to delete and recreate it",
+            _ => "",
+        }
+    }
+    fn store(e: &StoreError) -> &'static str {
+        match e {
+            StoreError::Exists { .. } => " (pass --force to replace it)",
+            _ => "",
+        }
+    }
+    if let Some(e) = e.downcast_ref::<CorpusError>() {
+        return corpus(e);
+    }
+    if let Some(e) = e.downcast_ref::<CacheError>() {
+        return cache(e);
+    }
+    if let Some(e) = e.downcast_ref::<StoreError>() {
+        return store(e);
+    }
+    match e.downcast_ref::<JobError>() {
+        Some(JobError::Input(e)) => corpus(e),
+        Some(JobError::Cache(e)) => cache(e),
+        Some(JobError::Store(e)) => store(e),
+        _ => "",
+    }
 }
 
 /// Entry point for the binary.
@@ -211,9 +256,14 @@ pub fn run() -> ExitCode {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
-            let mut msg = format!("kerf: error: {e}");
-            for cause in e.chain().skip(1) {
-                msg.push_str(&format!("\n  caused by: {cause}"));
+            let mut msg = String::new();
+            for (i, cause) in e.chain().enumerate() {
+                let lead = if i == 0 {
+                    "kerf: error: "
+                } else {
+                    "\n  caused by: "
+                };
+                msg.push_str(&format!("{lead}{cause}{}", hint(cause)));
             }
             eprintln!("{msg}");
             ExitCode::FAILURE

@@ -136,7 +136,7 @@ pub fn run(c: ProfileCmd) -> Result<()> {
             let text = p.to_toml();
             match a.out {
                 Some(path) => {
-                    kerf::output::write_atomic(&path, text.as_bytes(), a.force)
+                    kerf::store::write_atomic(&path, text.as_bytes(), a.force)
                         .with_context(|| format!("saving the profile to {}", path.display()))?;
                     eprintln!("kerf: wrote {}", path.display());
                 }

@@ -138,12 +138,12 @@ fn chart(path: &std::path::Path, rows: &[Row], front: &[usize], metric: &str) ->
         }))?;
         root.present()?;
     }
-    kerf::output::write_atomic(path, svg.as_bytes(), true)?;
+    kerf::store::write_atomic(path, svg.as_bytes(), true)?;
     Ok(())
 }
 
 pub fn run(a: SweepArgs) -> Result<()> {
-    let grid = Grid::parse(&a.grid)?;
+    let grid = Grid::parse(&a.grid).map_err(|e| anyhow::anyhow!("--{e}"))?;
     let base_loaded = load_plan(
         &PlanArgs {
             profile: a.profile.clone(),
@@ -336,7 +336,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
     if let (Some(path), Some((i, why))) = (&a.save_best, &rec) {
         let mut p = rows[*i].profile.clone();
         p.about = format!("recommended by kerf sweep: {why}");
-        kerf::output::write_atomic(path, p.to_toml().as_bytes(), true)
+        kerf::store::write_atomic(path, p.to_toml().as_bytes(), true)
             .with_context(|| format!("saving {}", path.display()))?;
         eprintln!("kerf: wrote the recommended plan to {}", path.display());
     }

@@ -9,22 +9,24 @@ use std::collections::{HashMap, HashSet};
 use std::ops::Range;
 use std::path::{Path, PathBuf};
 
-use crate::compare::engine::{self, Corpus, DocScore};
-use crate::compare::metrics::Summary;
-use crate::compare::refs::Reference;
-use crate::compare::sweep::plan_name;
-use crate::corpus::Notice;
-use crate::embed::{Precision, TokenPooling};
-use crate::model::ModelInfo;
-use crate::plan::{self, ResolvedPlan};
-use crate::pool::{self, ChunkPooling};
-use crate::profile::{Boundary, Profile};
-use crate::split::{self, Chunk};
-use crate::tokens::TokenCounter;
+use kerf::compare::engine::{self, Corpus};
+use kerf::compare::refs::Reference;
+use kerf::compare::sweep::plan_name;
+use kerf::corpus::Notice;
+use kerf::embed::{Precision, TokenPooling};
+use kerf::model::ModelInfo;
+use kerf::plan::{self, ResolvedPlan};
+use kerf::pool::ChunkPooling;
+use kerf::profile::{Boundary, Profile};
+use kerf::split;
+use kerf::tokens::TokenCounter;
 
 use super::action::{Action, Pane};
-use super::render;
-use super::worker::{Encoding, Job, Report, Request};
+use super::board::{build_layout, BoardLayout};
+use super::geometry;
+use super::plans::{cut_state, score_state, Ident, PlanState, VecId};
+use super::worker::{Job, Report, Request};
+use kerf::profile::Encoding;
 
 /// Window sizes the w/W keys step through (those above the model's limit are skipped).
 pub const WINDOW_STEPS: [usize; 8] = [64, 128, 192, 256, 320, 384, 448, 512];
@@ -144,103 +146,6 @@ pub struct Totals {
     pub oversize_sentences: usize,
 }
 
-/// Scores of a plan for every reference.
-#[derive(Debug, Clone)]
-pub struct Scored {
-    /// Per reference, documents best first.
-    pub ranking: Vec<Vec<DocScore>>,
-    /// Per reference and document, the cosine of each chunk.
-    pub chunk_cos: Vec<Vec<Vec<f32>>>,
-    /// Ranking metrics over references with expectations.
-    pub summary: Summary,
-}
-
-impl Scored {
-    /// (rank from 1, score) of a document for a reference.
-    pub fn rank_score(&self, reference: usize, doc: usize) -> Option<(usize, f32)> {
-        self.ranking[reference]
-            .iter()
-            .position(|s| s.doc == doc)
-            .map(|p| (p + 1, self.ranking[reference][p].score))
-    }
-}
-
-/// In-memory identity of a vector: a chunk by its document and byte range under a prefix, or a
-/// reference by its index. Hashing every chunk's text on every key press would cost more than
-/// re-cutting; the SQLite cache behind the worker still keys by the text itself.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum Ident {
-    /// A chunk of a document.
-    Chunk {
-        /// Hash of the prefix put before the chunk.
-        prefix: u64,
-        /// Document index.
-        doc: u32,
-        /// First byte.
-        start: u32,
-        /// Byte past the end.
-        end: u32,
-    },
-    /// A reference by its index.
-    Ref(u32),
-}
-
-/// A vector in memory: its identity under an encoding (token pooling and precision).
-type VecId = (Encoding, Ident);
-
-/// A plan cut over the corpus.
-#[derive(Clone)]
-pub struct PlanState {
-    /// The plan.
-    pub plan: ResolvedPlan,
-    /// Chunks of each document.
-    pub chunks: Vec<Vec<Chunk>>,
-    /// Identity of each chunk's vector.
-    pub keys: Vec<Vec<Ident>>,
-    /// Scores, once every vector is in.
-    pub scored: Option<Scored>,
-}
-
-/// How a stretch of the Board's text is drawn.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub struct Seg {
-    /// Bytes of the document.
-    pub bytes: Range<usize>,
-    /// The chunk it belongs to (the later one inside an overlap).
-    pub chunk: Option<usize>,
-    /// Inside two chunks.
-    pub overlap: bool,
-    /// Past the last chunk: text this plan never embeds.
-    pub unseen: bool,
-    /// Inside a sentence that alone exceeds the budget.
-    pub oversize: bool,
-}
-
-/// One screen line of the Board.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub struct VisualLine {
-    /// Bytes of the document on this line (no newline).
-    pub bytes: Range<usize>,
-    /// Stretches with their drawing.
-    pub segs: Vec<Seg>,
-    /// Chunks that start on this line.
-    pub chunk_starts: Range<usize>,
-}
-
-/// The Board's text wrapped to its width, computed once per plan, document or size change so
-/// drawing a frame only touches the visible lines.
-#[derive(Debug, Clone, Default)]
-pub struct BoardLayout {
-    /// The document.
-    pub doc: usize,
-    /// Text columns.
-    pub width: usize,
-    /// Screen lines.
-    pub lines: Vec<VisualLine>,
-    /// Line on which each chunk starts.
-    pub chunk_line: Vec<usize>,
-}
-
 /// The explorer's whole state.
 pub struct App {
     /// Documents, analysed.
@@ -314,17 +219,17 @@ pub fn baseline_profile(info: &ModelInfo, model_folder: Option<PathBuf>) -> Prof
     Profile {
         name: format!("baseline-head-{window}"),
         about: "first window only: what a truncating encoder sees".into(),
-        model: crate::profile::ModelSection {
+        model: kerf::profile::ModelSection {
             folder: model_folder,
         },
-        cut: crate::profile::CutSection {
+        cut: kerf::profile::CutSection {
             window,
             boundary: Boundary::Head,
             overlap: 0,
             min_chunk: 0,
             prefix: String::new(),
         },
-        pool: crate::profile::PoolSection {
+        pool: kerf::profile::PoolSection {
             tokens: TokenPooling::Mean,
             chunks: ChunkPooling::First,
             ..Default::default()
@@ -818,15 +723,15 @@ impl App {
                 encodings.push(encoding);
             }
             let mut texts = Vec::new();
+            let mut tokens = Vec::new();
             let mut ids = Vec::new();
             for (d, keys) in st.keys.iter().enumerate() {
                 for (c, k) in keys.iter().enumerate() {
                     let id = (encoding, *k);
                     if missing(&id, &mut asked) {
-                        texts.push(
-                            self.corpus.docs[d].text[st.chunks[d][c].byte_range.clone()]
-                                .to_string(),
-                        );
+                        let chunk = &st.chunks[d][c];
+                        texts.push(self.corpus.docs[d].text[chunk.byte_range.clone()].to_string());
+                        tokens.push(st.plan.input_tokens(chunk.content_tokens));
                         ids.push(id);
                     }
                 }
@@ -838,6 +743,7 @@ impl App {
                     encoding,
                     prefix: st.plan.profile.cut.prefix.clone(),
                     texts,
+                    tokens,
                 };
                 jobs.push((job, ids));
             }
@@ -860,12 +766,21 @@ impl App {
             }
             for (prefix, texts, ids) in by_prefix {
                 // References first: the Fit pane needs them before any chunk helps.
+                let tokens = texts
+                    .iter()
+                    .map(|t| {
+                        self.counter
+                            .count_input(&format!("{prefix}{t}"))
+                            .unwrap_or(0)
+                    })
+                    .collect();
                 let job = Job {
                     id: 0,
                     generation: None,
                     encoding,
                     prefix,
                     texts,
+                    tokens,
                 };
                 jobs.insert(0, (job, ids));
             }
@@ -975,7 +890,7 @@ impl App {
     }
 
     fn page_rows(&self) -> usize {
-        render::board_rows(self.size)
+        geometry::board_rows(self.size)
     }
 
     /// Keep the selected row of the Stock list in view (the list shares its rows with the
@@ -1041,10 +956,10 @@ impl App {
     fn relayout(&mut self, keep_byte: Option<usize>) {
         let doc = self.selected_doc();
         // Nothing is drawn below the minimum size; wrapping to a sliver would only cost time.
-        if self.corpus.docs.is_empty() || render::too_small(self.size) {
+        if self.corpus.docs.is_empty() || geometry::too_small(self.size) {
             return;
         }
-        let width = render::board_text_width(self.size);
+        let width = geometry::board_text_width(self.size);
         let same_doc = self.layout.doc == doc && !self.layout.lines.is_empty();
         let keep = keep_byte.filter(|_| same_doc).or_else(|| {
             (same_doc && self.layout.width != width)
@@ -1110,7 +1025,7 @@ impl App {
         if p.about.is_empty() || p.about.starts_with("saved from kerf explore") {
             p.about = format!("saved from kerf explore: {}", plan_name(&p));
         }
-        match crate::output::write_atomic(path, p.to_toml().as_bytes(), overwrite) {
+        match kerf::store::write_atomic(path, p.to_toml().as_bytes(), overwrite) {
             Ok(()) => self.say(
                 format!("saved {} (use it with kerf cut -p {0} …)", path.display()),
                 false,
@@ -1190,218 +1105,16 @@ fn cycle<T: Copy + PartialEq>(all: &[T], current: T, forward: bool) -> T {
     }]
 }
 
-/// Cut the corpus under a plan and key every chunk for the cache.
-pub fn cut_state(corpus: &Corpus, counter: &TokenCounter, plan: ResolvedPlan) -> PlanState {
-    use rayon::prelude::*;
-    let chunks = engine::cut_corpus(corpus, &plan, counter);
-    let prefix = {
-        use std::hash::{Hash, Hasher};
-        let mut h = std::collections::hash_map::DefaultHasher::new();
-        plan.profile.cut.prefix.hash(&mut h);
-        h.finish()
-    };
-    let keys = chunks
-        .par_iter()
-        .enumerate()
-        .map(|(doc, cs)| {
-            cs.iter()
-                .map(|c| Ident::Chunk {
-                    prefix,
-                    doc: doc as u32,
-                    start: c.byte_range.start as u32,
-                    end: c.byte_range.end as u32,
-                })
-                .collect::<Vec<Ident>>()
-        })
-        .collect();
-    PlanState {
-        plan,
-        chunks,
-        keys,
-        scored: None,
-    }
-}
-
-/// Score a plan when every vector it needs is in memory.
-fn score_state(
-    st: &PlanState,
-    corpus: &Corpus,
-    refs: &[Reference],
-    vectors: &HashMap<VecId, Vec<f32>>,
-) -> Option<Scored> {
-    if refs.is_empty() {
-        return None;
-    }
-    let encoding = Encoding::of(&st.plan.profile);
-    let ref_vecs: Vec<&[f32]> = (0..refs.len())
-        .map(|i| {
-            vectors
-                .get(&(encoding, Ident::Ref(i as u32)))
-                .map(Vec::as_slice)
-        })
-        .collect::<Option<_>>()?;
-    let chunk_vecs: Vec<Vec<&[f32]>> = st
-        .keys
-        .iter()
-        .map(|ks| {
-            ks.iter()
-                .map(|k| vectors.get(&(encoding, *k)).map(Vec::as_slice))
-                .collect::<Option<Vec<_>>>()
-        })
-        .collect::<Option<_>>()?;
-    let how = st.plan.profile.pool.chunks;
-    let temperature = st.plan.profile.pool.temperature;
-    let doc_vecs: Vec<Option<Vec<f32>>> = chunk_vecs
-        .iter()
-        .zip(&st.chunks)
-        .map(|(vs, cs)| pool::doc_vector(how, vs, &engine::new_tokens(cs), temperature))
-        .collect();
-    let mut ranking = Vec::with_capacity(refs.len());
-    let mut chunk_cos = Vec::with_capacity(refs.len());
-    for q in &ref_vecs {
-        let cos: Vec<Vec<f32>> = chunk_vecs
-            .iter()
-            .map(|vs| vs.iter().map(|v| pool::cosine(q, v)).collect())
-            .collect();
-        let scores = engine::rank_documents(corpus, q, &cos, &doc_vecs, how);
-        ranking.push(scores);
-        chunk_cos.push(cos);
-    }
-    let summary = engine::summarize(corpus, refs, &ranking);
-    Some(Scored {
-        ranking,
-        chunk_cos,
-        summary,
-    })
-}
-
-/// Wrap a document to `width` columns and mark, for every stretch of text, its chunk, overlap,
-/// oversize sentence and whether the plan sees it at all.
-pub fn build_layout(
-    text: &str,
-    chunks: &[Chunk],
-    oversize: &[Range<usize>],
-    width: usize,
-) -> BoardLayout {
-    let width = width.max(1);
-    let mut lines: Vec<Range<usize>> = Vec::new();
-    let mut start = 0;
-    for logical in text.split('\n') {
-        let end = start + logical.len();
-        wrap_line(text, start..end, width, &mut lines);
-        start = end + 1;
-    }
-    // Points where the drawing of the text may change.
-    let mut cuts: Vec<usize> = Vec::with_capacity(chunks.len() * 2 + oversize.len() * 2);
-    for c in chunks {
-        cuts.push(c.byte_range.start);
-        cuts.push(c.byte_range.end);
-    }
-    for r in oversize {
-        cuts.push(r.start);
-        cuts.push(r.end);
-    }
-    cuts.sort_unstable();
-    cuts.dedup();
-    let seen_end = chunks.last().map_or(0, |c| c.byte_range.end);
-    let mut k = 0; // first chunk ending after the position
-    let mut o = 0; // first oversize sentence ending after the position
-    let mut ci = 0; // cut pointer
-    let mut next_start = 0; // next chunk whose start is not yet placed on a line
-    let mut chunk_line = vec![0; chunks.len()];
-    let mut out = Vec::with_capacity(lines.len());
-    for (li, r) in lines.into_iter().enumerate() {
-        let mut segs = Vec::new();
-        let mut pos = r.start;
-        while ci < cuts.len() && cuts[ci] <= pos {
-            ci += 1;
-        }
-        while pos < r.end {
-            let end = cuts
-                .get(ci)
-                .copied()
-                .filter(|&c| c < r.end)
-                .unwrap_or(r.end);
-            while k < chunks.len() && chunks[k].byte_range.end <= pos {
-                k += 1;
-            }
-            while o < oversize.len() && oversize[o].end <= pos {
-                o += 1;
-            }
-            let inside = |c: &Chunk| c.byte_range.start <= pos && pos < c.byte_range.end;
-            let a = chunks.get(k).filter(|&c| inside(c));
-            let b = chunks.get(k + 1).filter(|&c| inside(c));
-            segs.push(Seg {
-                bytes: pos..end,
-                chunk: b.or(a).map(|c| c.index),
-                overlap: a.is_some() && b.is_some(),
-                unseen: pos >= seen_end,
-                oversize: oversize
-                    .get(o)
-                    .is_some_and(|s| s.start <= pos && pos < s.end),
-            });
-            pos = end;
-            if ci < cuts.len() && cuts[ci] <= pos {
-                ci += 1;
-            }
-        }
-        let first = next_start;
-        while next_start < chunks.len()
-            && chunks[next_start].byte_range.start < r.end.max(r.start + 1)
-        {
-            chunk_line[next_start] = li;
-            next_start += 1;
-        }
-        out.push(VisualLine {
-            bytes: r,
-            segs,
-            chunk_starts: first..next_start,
-        });
-    }
-    BoardLayout {
-        doc: 0,
-        width,
-        lines: out,
-        chunk_line,
-    }
-}
-
-/// Greedy word wrap of one logical line (counting characters as columns).
-fn wrap_line(text: &str, r: Range<usize>, width: usize, out: &mut Vec<Range<usize>>) {
-    let s = &text[r.clone()];
-    if s.is_empty() {
-        out.push(r.start..r.start);
-        return;
-    }
-    let mut line_start = 0;
-    let mut cols = 0;
-    let mut last_space: Option<usize> = None; // byte after a space in the current line
-    for (i, ch) in s.char_indices() {
-        if cols == width {
-            let brk = last_space.filter(|&b| b > line_start).unwrap_or(i);
-            out.push(r.start + line_start..r.start + brk);
-            cols = s[brk..i].chars().count();
-            line_start = brk;
-            last_space = None;
-        }
-        cols += 1;
-        if ch == ' ' || ch == '\t' {
-            last_space = Some(i + ch.len_utf8());
-        }
-    }
-    out.push(r.start + line_start..r.end);
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::cache::text_key;
-    use crate::corpus::Document;
+    use kerf::cache::text_key;
+    use kerf::corpus::Document;
 
     fn demo_app(files: &[&str]) -> App {
-        let dir = crate::model::default_model_dir();
+        let dir = kerf::model::default_model_dir();
         let (info, counter) =
-            crate::model::inspect(&dir).expect("model fetched (scripts/fetch-model)");
+            kerf::model::inspect(&dir).expect("model fetched (scripts/fetch-model)");
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-texts");
         let docs = files
             .iter()
@@ -1412,7 +1125,7 @@ mod tests {
             })
             .collect();
         let corpus = Corpus::new(docs, &counter).unwrap();
-        let refs = crate::compare::refs::load(&root.join("references.toml"), None).unwrap();
+        let refs = kerf::compare::refs::load(&root.join("references.toml"), None).unwrap();
         let profile = Profile::load(
             &Path::new(env!("CARGO_MANIFEST_DIR")).join("profiles/sentences-256.toml"),
         )
@@ -1434,7 +1147,7 @@ mod tests {
 
     /// Answer every queued job with the hash embedder, as the worker would.
     fn serve(app: &mut App) {
-        use crate::embed::{Embedder, HashEmbedder};
+        use kerf::embed::{Embedder, HashEmbedder};
         let e = HashEmbedder { dim: 32 };
         loop {
             let reqs = app.take_requests();
@@ -1655,31 +1368,5 @@ mod tests {
         };
         app.update(Action::PromptSubmit);
         assert_eq!(app.current.plan.profile.cut.overlap, 16, "{:?}", app.status);
-    }
-
-    #[test]
-    fn layout_marks_chunks_overlap_and_unseen() {
-        let text = "alpha beta gamma delta\nepsilon zeta";
-        let mk = |i, r: Range<usize>| Chunk {
-            index: i,
-            byte_range: r,
-            token_range: 0..1,
-            content_tokens: 1,
-            overlap_tokens: 0,
-            sentence_range: 0..1,
-        };
-        let chunks = [mk(0, 0..16), mk(1, 11..22)];
-        let l = build_layout(text, &chunks, &[], 12);
-        let lines: Vec<&str> = l.lines.iter().map(|v| &text[v.bytes.clone()]).collect();
-        assert_eq!(lines, ["alpha beta ", "gamma delta", "epsilon zeta"]);
-        assert_eq!(l.chunk_line, [0, 1]);
-        let g = &l.lines[1].segs;
-        assert_eq!(&text[g[0].bytes.clone()], "gamma");
-        assert!(g[0].overlap && g[0].chunk == Some(1));
-        assert!(!g[1].overlap && g[1].chunk == Some(1));
-        assert!(l.lines[2]
-            .segs
-            .iter()
-            .all(|s| s.unseen && s.chunk.is_none()));
     }
 }

@@ -8,7 +8,10 @@
 //! tested with ratatui's `TestBackend` and plain function calls.
 pub mod action;
 pub mod app;
+pub mod board;
+pub mod geometry;
 pub mod keys;
+pub mod plans;
 pub mod render;
 pub mod worker;
 

@@ -1,8 +1,7 @@
 //! Drawing the explorer: a pure function of [`App`] into a ratatui buffer.
 //!
-//! Geometry lives here too ([`areas`], [`board_text_width`]) so that `update` (which wraps the
-//! Board's text to its width) and the mouse mapping in [`crate::tui::keys`] agree with what is
-//! drawn. The Board draws only its visible lines from the precomputed layout, so a frame costs
+//! Geometry lives in [`super::geometry`], shared with `update` and the mouse mapping in
+//! [`crate::tui::keys`], so they agree with what is drawn. The Board draws only its visible lines from the precomputed layout, so a frame costs
 //! the same for a page of text as for 30,000 words.
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
@@ -13,58 +12,15 @@ use ratatui::Frame;
 
 use super::action::Pane;
 use super::app::{App, Mode, PromptKind};
-use crate::compare::sweep::plan_name;
-
-/// The smallest terminal the explorer draws in (columns, rows).
-pub const MIN_SIZE: (u16, u16) = (60, 16);
-/// Columns of the Board's gutter (chunk index and token count).
-pub const GUTTER: u16 = 11;
-const HEADER_ROWS: u16 = 3;
-
-/// Where each part of the screen goes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct Areas {
-    /// Plan, totals, progress.
-    pub header: Rect,
-    /// Pane names.
-    pub tabs: Rect,
-    /// The pane.
-    pub body: Rect,
-    /// Prompt, messages, key hints.
-    pub status: Rect,
-}
-
-/// Split a terminal of `size` (columns, rows) into the explorer's areas.
-pub fn areas(size: (u16, u16)) -> Areas {
-    let (w, h) = size;
-    let row = |y: u16, height: u16| Rect::new(0, y.min(h), w, height.min(h.saturating_sub(y)));
-    let body_h = h.saturating_sub(HEADER_ROWS + 2);
-    Areas {
-        header: row(0, HEADER_ROWS),
-        tabs: row(HEADER_ROWS, 1),
-        body: row(HEADER_ROWS + 1, body_h),
-        status: row(h.saturating_sub(1), 1),
-    }
-}
-
-/// Text columns of the Board for a terminal size (gutter and scroll bar taken off).
-pub fn board_text_width(size: (u16, u16)) -> usize {
-    size.0.saturating_sub(GUTTER + 1).max(1) as usize
-}
-
-/// True when the terminal is too small to draw the explorer.
-pub fn too_small(size: (u16, u16)) -> bool {
-    size.0 < MIN_SIZE.0 || size.1 < MIN_SIZE.1
-}
+use super::board::Seg;
+pub use super::geometry::{
+    areas, board_rows, board_text_width, too_small, Areas, GUTTER, MIN_SIZE,
+};
+use kerf::compare::sweep::plan_name;
 
 /// Draw the whole explorer into a frame.
 pub fn draw(frame: &mut Frame, app: &App) {
     frame.render_widget(app, frame.area());
-}
-
-/// Visible Board rows for a terminal size (the document title takes one).
-pub fn board_rows(size: (u16, u16)) -> usize {
-    areas(size).body.height.saturating_sub(1) as usize
 }
 
 fn thousands(n: usize) -> String {
@@ -146,33 +102,84 @@ fn offset(r: Rect, area: Rect) -> Rect {
     Rect::new(r.x + area.x, r.y + area.y, r.width, r.height)
 }
 
-fn header(app: &App, area: Rect, buf: &mut Buffer) {
-    let p = &app.current.plan.profile;
+/// The header's plan line at `width` columns: the whole plan always, the model's name when
+/// there is room. Forms from the widest: labelled with the model; labelled, model's name cut
+/// short; labelled without the model; short labels without the model. Returns the line and
+/// whether the model's name is on it (if not, the third header row shows it).
+pub fn plan_line(p: &kerf::profile::Profile, model: &str, width: usize) -> (Line<'static>, bool) {
     let sep = || Span::styled(" │ ", DIM);
-    let kv = |k: &'static str, v: String| {
+    let value = Style::new().fg(Color::Cyan).add_modifier(Modifier::BOLD);
+    let badge = || {
         vec![
-            Span::styled(k, DIM),
-            Span::styled(v, Style::new().fg(Color::Cyan).add_modifier(Modifier::BOLD)),
+            Span::styled(" kerf ", Style::new().fg(Color::Black).bg(Color::Cyan)),
+            Span::raw(" "),
         ]
     };
-    let mut plan = vec![
-        Span::styled(" kerf ", Style::new().fg(Color::Black).bg(Color::Cyan)),
-        Span::raw(" "),
-    ];
-    plan.extend(kv("model ", app.model_label.clone()));
-    for (k, v) in [
+    let tokens = format!("{:?}", p.pool.tokens).to_lowercase();
+    let full: Vec<(&str, String)> = vec![
         ("window ", p.cut.window.to_string()),
         ("boundary ", p.cut.boundary.name().to_string()),
         ("overlap ", p.cut.overlap.to_string()),
         ("min chunk ", p.cut.min_chunk.to_string()),
-        ("tokens ", format!("{:?}", p.pool.tokens).to_lowercase()),
+        ("tokens ", tokens.clone()),
         ("chunks ", p.pool.chunks.name().to_string()),
         ("precision ", p.pool.precision.name().to_string()),
-    ] {
-        plan.push(sep());
-        plan.extend(kv(k, v));
+    ];
+    let short: Vec<(&str, String)> = vec![
+        ("window ", p.cut.window.to_string()),
+        ("", p.cut.boundary.name().to_string()),
+        ("overlap ", p.cut.overlap.to_string()),
+        ("min ", p.cut.min_chunk.to_string()),
+        ("tokens ", tokens),
+        ("chunks ", p.pool.chunks.name().to_string()),
+        ("", p.pool.precision.name().to_string()),
+    ];
+    let items_width = |items: &[(&str, String)]| {
+        items
+            .iter()
+            .map(|(k, v)| 3 + k.len() + v.chars().count())
+            .sum::<usize>()
+    };
+    let build = |model: Option<String>, items: &[(&str, String)]| {
+        let mut spans = badge();
+        let mut first = true;
+        if let Some(m) = model {
+            spans.push(Span::styled("model ", DIM));
+            spans.push(Span::styled(m, value));
+            first = false;
+        }
+        for (k, v) in items {
+            if !first {
+                spans.push(sep());
+            }
+            first = false;
+            spans.push(Span::styled(k.to_string(), DIM));
+            spans.push(Span::styled(v.clone(), value));
+        }
+        Line::from(spans)
+    };
+    let badge_w = 7;
+    let model_w = model.chars().count();
+    // Labelled, with the model's name (whole or cut to at least 12 columns).
+    let room = width.saturating_sub(badge_w + "model ".len() + items_width(&full));
+    if room >= model_w {
+        return (build(Some(model.to_string()), &full), true);
     }
-    buf.set_line(area.x, area.y, &Line::from(plan), area.width);
+    if room >= 12 {
+        let cut: String = model.chars().take(room - 1).collect();
+        return (build(Some(format!("{cut}…")), &full), true);
+    }
+    if badge_w + items_width(&full) - 3 <= width {
+        return (build(None, &full), false);
+    }
+    (build(None, &short), false)
+}
+
+fn header(app: &App, area: Rect, buf: &mut Buffer) {
+    let p = &app.current.plan.profile;
+    let sep = || Span::styled(" │ ", DIM);
+    let (plan, model_shown) = plan_line(p, &app.model_label, area.width as usize);
+    buf.set_line(area.x, area.y, &plan, area.width);
     let t = &app.totals;
     let pct = if t.tokens == 0 {
         0.0
@@ -234,9 +241,14 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
             Gauge::default()
                 .gauge_style(Style::new().fg(Color::Blue).bg(Color::Indexed(236)))
                 .ratio(ratio)
-                .label(format!(
-                    "embedding {done}/{total} chunks (the UI stays live)"
-                ))
+                .label(if model_shown {
+                    format!("embedding {done}/{total} chunks (the UI stays live)")
+                } else {
+                    format!(
+                        "{}: embedding {done}/{total} chunks (the UI stays live)",
+                        app.model_label
+                    )
+                })
                 .render(row, buf);
         } else {
             let cmp = app.comparison();
@@ -245,7 +257,12 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
             } else {
                 "truncation baseline"
             };
-            let line = Line::from(vec![
+            let mut spans = Vec::new();
+            if !model_shown {
+                spans.push(Span::styled(" model ", DIM));
+                spans.push(Span::raw(app.model_label.clone()));
+            }
+            spans.extend([
                 Span::styled(" plan ", DIM),
                 Span::raw(plan_name(p)),
                 Span::styled("  compared with ", DIM),
@@ -259,7 +276,7 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
                     DIM,
                 ),
             ]);
-            buf.set_line(row.x, row.y, &line, row.width);
+            buf.set_line(row.x, row.y, &Line::from(spans), row.width);
         }
     }
 }
@@ -438,8 +455,8 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
                 " · {} tokens, {} overlap · lines {}-{}",
                 app.current.plan.input_tokens(c.content_tokens),
                 c.overlap_tokens,
-                crate::segment::line_of(&d.text, c.byte_range.start),
-                crate::segment::line_of(&d.text, c.byte_range.end.saturating_sub(1))
+                kerf::segment::line_of(&d.text, c.byte_range.start),
+                kerf::segment::line_of(&d.text, c.byte_range.end.saturating_sub(1))
             ),
             DIM,
         ));
@@ -547,7 +564,7 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
     }
 }
 
-fn seg_style(s: &super::app::Seg, best: Option<usize>) -> Style {
+fn seg_style(s: &Seg, best: Option<usize>) -> Style {
     let mut st = Style::new();
     if s.unseen {
         return st.fg(Color::DarkGray);

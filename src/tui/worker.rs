@@ -10,31 +10,13 @@ use std::sync::mpsc::{self, Receiver, Sender};
 use std::sync::Arc;
 use std::thread::JoinHandle;
 
-use crate::cache::{self, VectorCache};
-use crate::embed::{Embedder, Precision, TokenPooling};
-use crate::profile::Profile;
+use kerf::cache::{self, VectorCache};
+use kerf::embed::Embedder;
+use kerf::job;
+pub use kerf::profile::Encoding;
 
-/// Cache key of one input: sha256 of prefix and text (see [`crate::cache::text_key`]).
+/// Cache key of one input: sha256 of prefix and text (see [`kerf::cache::text_key`]).
 pub type Key = [u8; 32];
-
-/// Which encoder a vector comes from: a plan's token pooling and arithmetic.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub struct Encoding {
-    /// Token pooling.
-    pub pooling: TokenPooling,
-    /// Arithmetic of the forward pass.
-    pub precision: Precision,
-}
-
-impl Encoding {
-    /// The encoding a profile asks for.
-    pub fn of(profile: &Profile) -> Self {
-        Self {
-            pooling: profile.pool.tokens,
-            precision: profile.pool.precision,
-        }
-    }
-}
 
 /// Texts to embed under one encoding and prefix.
 #[derive(Debug, Clone, PartialEq)]
@@ -49,6 +31,8 @@ pub struct Job {
     pub prefix: String,
     /// The texts (without the prefix).
     pub texts: Vec<String>,
+    /// Encoder-input tokens of each text (prefix and specials included), for batching.
+    pub tokens: Vec<usize>,
 }
 
 /// What the worker tells the UI.
@@ -232,29 +216,41 @@ fn embed_job(
             e
         }
     };
-    let texts: Vec<&str> = job.texts.iter().map(String::as_str).collect();
-    let mut vectors = Vec::with_capacity(texts.len());
+    let inputs: Vec<(&str, usize)> = job
+        .texts
+        .iter()
+        .map(String::as_str)
+        .zip(job.tokens.iter().copied().chain(std::iter::repeat(0)))
+        .collect();
+    let mut vectors = Vec::with_capacity(inputs.len());
     let mut embedded = 0;
-    for slice in texts.chunks(SLICE) {
+    for slice in inputs.chunks(SLICE) {
         let mut generation = 0;
         poll(&mut generation);
         if job.generation.is_some_and(|g| g < generation) {
             return Ok(None);
         }
-        let (v, report) =
-            cache::embed_with_cache(embedder.as_ref(), cache, &job.prefix, slice, &mut |_, _| {})?;
+        let (v, report) = job::embed_cached(
+            embedder.as_ref(),
+            cache,
+            &job.prefix,
+            slice,
+            kerf::compare::engine::REF_BATCH_TOKENS,
+            &mut |_, _| {},
+        )?;
         embedded += report.embedded;
         vectors.extend(v);
         let _ = reports.send(Report::Progress {
             id: job.id,
             done: vectors.len(),
-            total: texts.len(),
+            total: inputs.len(),
         });
     }
     Ok(Some(Report::Done {
         id: job.id,
         encoding: job.encoding,
-        keys: texts
+        keys: job
+            .texts
             .iter()
             .map(|t| cache::text_key(&job.prefix, t))
             .collect(),
@@ -266,7 +262,8 @@ fn embed_job(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::embed::HashEmbedder;
+    use kerf::embed::HashEmbedder;
+    use kerf::profile::{Precision, TokenPooling};
 
     fn hash_factory() -> EmbedderFactory {
         Box::new(|_: Encoding| {
@@ -286,6 +283,7 @@ mod tests {
             },
             prefix: String::new(),
             texts: vec!["a b".into(), "c".into()],
+            tokens: vec![4, 3],
         };
         // Generation 2 arrives before the generation-1 job starts only if sent first.
         w.requests.send(Request::Generation(2)).unwrap();

@@ -19,18 +19,7 @@ use crate::profile::Boundary;
 use crate::segment::Segments;
 use crate::tokens::Tokenized;
 
-/// A resolved cutting plan, in content tokens (specials and prefix already taken off).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct CutPlan {
-    /// Where boundaries may fall.
-    pub boundary: Boundary,
-    /// Content tokens one chunk may hold.
-    pub budget_tokens: usize,
-    /// Tokens a chunk should share with the one before (at most).
-    pub overlap_tokens: usize,
-    /// A last chunk adding fewer tokens than this is merged back.
-    pub min_chunk_tokens: usize,
-}
+pub use crate::plan::CutPlan;
 
 /// One chunk of a document.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]

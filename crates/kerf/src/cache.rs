@@ -22,9 +22,7 @@ pub enum CacheError {
         source: rusqlite::Error,
     },
     /// The file is damaged.
-    #[error(
-        "vector cache {path} is corrupt ({detail}); pass --rebuild-cache to delete and recreate it"
-    )]
+    #[error("vector cache {path} is corrupt ({detail})")]
     Corrupt { path: PathBuf, detail: String },
 }
 
@@ -208,109 +206,23 @@ fn fingerprint_bytes(f: &str) -> Vec<u8> {
     Sha256::digest(f.as_bytes()).to_vec()
 }
 
-/// What a cached embedding call did.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, serde::Serialize)]
-pub struct CacheReport {
-    /// Inputs asked for.
-    pub inputs: usize,
-    /// Found in the cache (or repeated within the call).
-    pub hits: usize,
-    /// Embedded now.
-    pub embedded: usize,
-}
-
-/// Embed texts through the cache: look everything up, embed only the distinct misses (in
-/// groups of a few hundred, each stored as it is done so a killed run keeps its work), and
-/// report progress as (done, total).
-pub fn embed_with_cache(
-    embedder: &dyn crate::embed::Embedder,
-    cache: Option<&VectorCache>,
-    prefix: &str,
-    texts: &[&str],
-    progress: &mut dyn FnMut(usize, usize),
-) -> anyhow::Result<(Vec<Vec<f32>>, CacheReport)> {
-    let fp = embedder.fingerprint();
-    let keys: Vec<[u8; 32]> = texts.iter().map(|t| text_key(prefix, t)).collect();
-    let mut out: Vec<Option<Vec<f32>>> = match cache {
-        Some(c) => c.get_many(&fp, &keys)?,
-        None => vec![None; texts.len()],
-    };
-    let mut first_of: std::collections::HashMap<[u8; 32], usize> = std::collections::HashMap::new();
-    let mut misses: Vec<usize> = Vec::new();
-    for (i, k) in keys.iter().enumerate() {
-        if out[i].is_none() && !first_of.contains_key(k) {
-            first_of.insert(*k, i);
-            misses.push(i);
-        }
-    }
-    let total = misses.len();
-    progress(0, total);
-    let mut done = 0;
-    for group in misses.chunks(256) {
-        let inputs: Vec<String> = group
-            .iter()
-            .map(|&i| format!("{prefix}{}", texts[i]))
-            .collect();
-        let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
-        let vecs = embedder.embed(&refs)?;
-        if let Some(c) = cache {
-            let items: Vec<([u8; 32], Vec<f32>)> = group
-                .iter()
-                .map(|&i| keys[i])
-                .zip(vecs.iter().cloned())
-                .collect();
-            c.put_many(&fp, &items)?;
-        }
-        for (&i, v) in group.iter().zip(vecs) {
-            out[i] = Some(v);
-        }
-        done += group.len();
-        progress(done, total);
-    }
-    for i in 0..out.len() {
-        if out[i].is_none() {
-            out[i] = out[first_of[&keys[i]]].clone();
-        }
-    }
-    let report = CacheReport {
-        inputs: texts.len(),
-        hits: texts.len() - total,
-        embedded: total,
-    };
-    Ok((
-        out.into_iter().map(|v| v.expect("filled")).collect(),
-        report,
-    ))
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::embed::HashEmbedder;
 
     #[test]
-    fn round_trip_and_reuse() {
+    fn round_trip() {
         let dir = tempfile::tempdir().unwrap();
         let c = VectorCache::open(&dir.path().join("v.sqlite")).unwrap();
-        let e = HashEmbedder { dim: 8 };
-        let (v1, r1) =
-            embed_with_cache(&e, Some(&c), "", &["a b", "c d", "a b"], &mut |_, _| {}).unwrap();
+        let (a, b) = (text_key("", "a"), text_key("", "b"));
+        c.put_many("m", &[(a, vec![1.0, -2.5])]).unwrap();
         assert_eq!(
-            r1,
-            CacheReport {
-                inputs: 3,
-                hits: 1,
-                embedded: 2
-            }
+            c.get_many("m", &[a, b]).unwrap(),
+            vec![Some(vec![1.0, -2.5]), None]
         );
-        assert_eq!(v1[0], v1[2]);
-        let (v2, r2) = embed_with_cache(&e, Some(&c), "", &["c d", "a b"], &mut |_, _| {}).unwrap();
-        assert_eq!(r2.embedded, 0);
-        assert_eq!(v2[1], v1[0]);
+        assert_eq!(c.get_many("other", &[a]).unwrap(), vec![None]);
         // A prefix is part of the key.
-        let (_, r3) = embed_with_cache(&e, Some(&c), "query: ", &["a b"], &mut |_, _| {}).unwrap();
-        assert_eq!(r3.embedded, 1);
-        assert_eq!(c.count("hash-8").unwrap(), 3);
+        assert_ne!(text_key("query: ", "a"), a);
     }
 
     #[test]
@@ -323,10 +235,7 @@ mod tests {
         )
         .unwrap();
         let e = VectorCache::open(&p).err().unwrap().to_string();
-        assert!(
-            e.contains("is corrupt") && e.contains("--rebuild-cache"),
-            "{e}"
-        );
+        assert!(e.contains("is corrupt") && e.contains("v.sqlite"), "{e}");
         let c = VectorCache::rebuild(&p).unwrap();
         assert_eq!(c.count("x").unwrap(), 0);
     }

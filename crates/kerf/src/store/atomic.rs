@@ -1,4 +1,4 @@
-//! Writing outputs so that a failed run never leaves a file that looks complete.
+//! Single files written so that a failed run never leaves a file that looks complete.
 //!
 //! Everything goes to a temporary file beside the target and is renamed into place only when
 //! the whole output was written and flushed; a file dropped without [`AtomicFile::commit`]
@@ -6,19 +6,7 @@
 use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 
-/// Errors writing an output.
-#[derive(Debug, thiserror::Error)]
-pub enum OutputError {
-    /// Creating, writing or renaming failed.
-    #[error("{path}: {source}")]
-    Io {
-        path: PathBuf,
-        source: std::io::Error,
-    },
-    /// The target exists and overwriting was not asked for.
-    #[error("{path} already exists (pass --force to replace it)")]
-    Exists { path: PathBuf },
-}
+use super::StoreError;
 
 /// A file written in full or not at all.
 pub struct AtomicFile {
@@ -28,9 +16,9 @@ pub struct AtomicFile {
 
 impl AtomicFile {
     /// Start writing `target`; refuses an existing target unless `overwrite`.
-    pub fn create(target: &Path, overwrite: bool) -> Result<Self, OutputError> {
+    pub fn create(target: &Path, overwrite: bool) -> Result<Self, StoreError> {
         if !overwrite && target.exists() {
-            return Err(OutputError::Exists {
+            return Err(StoreError::Exists {
                 path: target.to_path_buf(),
             });
         }
@@ -46,7 +34,7 @@ impl AtomicFile {
             .prefix(&format!(".{name}."))
             .suffix(".partial")
             .tempfile_in(dir)
-            .map_err(|source| OutputError::Io {
+            .map_err(|source| StoreError::Io {
                 path: target.to_path_buf(),
                 source,
             })?;
@@ -62,9 +50,9 @@ impl AtomicFile {
     }
 
     /// Flush, sync and rename into place.
-    pub fn commit(self) -> Result<(), OutputError> {
+    pub fn commit(self) -> Result<(), StoreError> {
         let path = self.target.clone();
-        let io = |source| OutputError::Io {
+        let io = |source| StoreError::Io {
             path: path.clone(),
             source,
         };
@@ -85,9 +73,9 @@ impl Write for AtomicFile {
 }
 
 /// Write a whole file atomically from bytes.
-pub fn write_atomic(target: &Path, bytes: &[u8], overwrite: bool) -> Result<(), OutputError> {
+pub fn write_atomic(target: &Path, bytes: &[u8], overwrite: bool) -> Result<(), StoreError> {
     let mut f = AtomicFile::create(target, overwrite)?;
-    f.write_all(bytes).map_err(|source| OutputError::Io {
+    f.write_all(bytes).map_err(|source| StoreError::Io {
         path: target.to_path_buf(),
         source,
     })?;
@@ -116,7 +104,7 @@ mod tests {
         assert_eq!(std::fs::read(&t).unwrap(), b"whole");
         assert!(matches!(
             write_atomic(&t, b"again", false),
-            Err(OutputError::Exists { .. })
+            Err(StoreError::Exists { .. })
         ));
         write_atomic(&t, b"again", true).unwrap();
         assert_eq!(std::fs::read(&t).unwrap(), b"again");

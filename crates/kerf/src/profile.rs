@@ -3,12 +3,13 @@
 //! Parsing is strict (unknown keys are errors with line and column) and kept apart from loading
 //! from disk so tests never need files. Checks that need no model run in [`Profile::validate`];
 //! checks against the model's limits run when the plan is resolved in [`crate::plan`].
+//!
+//! The plan's choices (boundary rule, token pooling, chunk aggregation, precision, engine) are
+//! plain data defined here; the stages that carry them out (split, pool, embed) import them,
+//! never the reverse.
 use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
-
-use crate::embed::{Precision, TokenPooling};
-use crate::pool::ChunkPooling;
 
 /// The profile schema this build reads and writes.
 pub const SCHEMA_VERSION: u32 = 1;
@@ -44,6 +45,110 @@ impl Boundary {
             Boundary::Sentence => "sentence",
             Boundary::Paragraph => "paragraph",
         }
+    }
+}
+
+/// How token vectors inside one input become one vector.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, Hash)]
+#[serde(rename_all = "kebab-case")]
+pub enum TokenPooling {
+    /// Average over the attention mask, specials included (the sentence-embedding default).
+    #[default]
+    Mean,
+    /// The first ([CLS]) token's vector.
+    Cls,
+    /// Per-dimension maximum over the tokens.
+    Max,
+}
+
+/// Arithmetic of the forward pass.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, Hash)]
+#[serde(rename_all = "kebab-case")]
+pub enum Precision {
+    /// 32-bit floats.
+    #[default]
+    F32,
+    /// bfloat16 weights with f32 arithmetic: the accuracy of bf16, not yet its speed (no kernel
+    /// for bf16 dot-product instructions; notes/encoder-speed.md).
+    Bf16,
+    /// 8-bit weights (per output column) and activations (per row, quantised as they arrive)
+    /// with 32-bit integer sums, in the dense layers; attention stays f32.
+    Int8,
+}
+
+impl Precision {
+    /// Every precision, widest first.
+    pub const ALL: [Precision; 3] = [Precision::F32, Precision::Bf16, Precision::Int8];
+
+    /// The name profiles use.
+    pub fn name(self) -> &'static str {
+        match self {
+            Precision::F32 => "f32",
+            Precision::Bf16 => "bf16",
+            Precision::Int8 => "int8",
+        }
+    }
+}
+
+/// Which forward pass runs the model.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, Hash)]
+#[serde(rename_all = "kebab-case")]
+pub enum Engine {
+    /// kerf's padding-free packed forward pass (the default).
+    #[default]
+    Packed,
+    /// candle-transformers' stock BERT, padded batches: the correctness reference.
+    Candle,
+}
+
+/// How chunk vectors of one document are combined.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, Hash)]
+#[serde(rename_all = "kebab-case")]
+pub enum ChunkPooling {
+    /// Mean of the chunk vectors.
+    #[default]
+    Mean,
+    /// Per-dimension maximum.
+    DimMax,
+    /// Mean weighted by the tokens each chunk adds (overlap counted once).
+    TokenMean,
+    /// Each chunk weighs by softmax(cosine to the plain mean / temperature): chunks near the
+    /// document's centre count more; an attention-free weighting.
+    SoftCentroid,
+    /// First chunk only (FirstP).
+    First,
+    /// Score = the best chunk's cosine (MaxP).
+    Best,
+    /// Score = the sum of chunk cosines (SumP).
+    Sum,
+}
+
+impl ChunkPooling {
+    /// Every aggregation, in the order a user steps through them.
+    pub const ALL: [ChunkPooling; 7] = [
+        ChunkPooling::Mean,
+        ChunkPooling::DimMax,
+        ChunkPooling::TokenMean,
+        ChunkPooling::SoftCentroid,
+        ChunkPooling::First,
+        ChunkPooling::Best,
+        ChunkPooling::Sum,
+    ];
+    /// The profile spelling.
+    pub fn name(self) -> &'static str {
+        match self {
+            ChunkPooling::Mean => "mean",
+            ChunkPooling::DimMax => "dim-max",
+            ChunkPooling::TokenMean => "token-mean",
+            ChunkPooling::SoftCentroid => "soft-centroid",
+            ChunkPooling::First => "first",
+            ChunkPooling::Best => "best",
+            ChunkPooling::Sum => "sum",
+        }
+    }
+    /// True for scorings that give no single document vector.
+    pub fn is_scoring(self) -> bool {
+        matches!(self, ChunkPooling::Best | ChunkPooling::Sum)
     }
 }
 
@@ -126,6 +231,26 @@ pub struct PoolSection {
 
 fn default_temperature() -> f32 {
     0.1
+}
+
+/// Which encoder a vector comes from: a plan's token pooling and arithmetic. Two plans with the
+/// same encoding share chunk vectors for the same input text.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub struct Encoding {
+    /// Token pooling.
+    pub pooling: TokenPooling,
+    /// Arithmetic of the forward pass.
+    pub precision: Precision,
+}
+
+impl Encoding {
+    /// The encoding a profile asks for.
+    pub fn of(profile: &Profile) -> Self {
+        Self {
+            pooling: profile.pool.tokens,
+            precision: profile.pool.precision,
+        }
+    }
 }
 
 impl Default for PoolSection {
@@ -267,7 +392,7 @@ impl Profile {
         self.model
             .folder
             .clone()
-            .unwrap_or_else(crate::model::default_model_dir)
+            .unwrap_or_else(crate::home::default_model_dir)
     }
 
     /// Serialise as TOML (round-trips through [`Profile::from_toml_str`]).

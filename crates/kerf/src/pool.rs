@@ -4,58 +4,7 @@
 //! token-weighted mean, soft centroid, first chunk), and scorings that only exist per reference
 //! (best chunk, sum of chunks; MaxP and SumP in Dai & Callan, SIGIR 2019; FirstP is `first`).
 //! All are pure functions over plain slices.
-use serde::{Deserialize, Serialize};
-
-/// How chunk vectors of one document are combined.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, Hash)]
-#[serde(rename_all = "kebab-case")]
-pub enum ChunkPooling {
-    /// Mean of the chunk vectors.
-    #[default]
-    Mean,
-    /// Per-dimension maximum.
-    DimMax,
-    /// Mean weighted by the tokens each chunk adds (overlap counted once).
-    TokenMean,
-    /// Each chunk weighs by softmax(cosine to the plain mean / temperature): chunks near the
-    /// document's centre count more; an attention-free weighting.
-    SoftCentroid,
-    /// First chunk only (FirstP).
-    First,
-    /// Score = the best chunk's cosine (MaxP).
-    Best,
-    /// Score = the sum of chunk cosines (SumP).
-    Sum,
-}
-
-impl ChunkPooling {
-    /// Every aggregation, in the order a user steps through them.
-    pub const ALL: [ChunkPooling; 7] = [
-        ChunkPooling::Mean,
-        ChunkPooling::DimMax,
-        ChunkPooling::TokenMean,
-        ChunkPooling::SoftCentroid,
-        ChunkPooling::First,
-        ChunkPooling::Best,
-        ChunkPooling::Sum,
-    ];
-    /// The profile spelling.
-    pub fn name(self) -> &'static str {
-        match self {
-            ChunkPooling::Mean => "mean",
-            ChunkPooling::DimMax => "dim-max",
-            ChunkPooling::TokenMean => "token-mean",
-            ChunkPooling::SoftCentroid => "soft-centroid",
-            ChunkPooling::First => "first",
-            ChunkPooling::Best => "best",
-            ChunkPooling::Sum => "sum",
-        }
-    }
-    /// True for scorings that give no single document vector.
-    pub fn is_scoring(self) -> bool {
-        matches!(self, ChunkPooling::Best | ChunkPooling::Sum)
-    }
-}
+pub use crate::profile::ChunkPooling;
 
 /// Dot product.
 pub fn dot(a: &[f32], b: &[f32]) -> f32 {

@@ -5,8 +5,20 @@
 //! architecture, or an overlap that leaves no room for new text, is refused.
 use crate::model::ModelInfo;
 use crate::profile::{Boundary, Profile};
-use crate::split::CutPlan;
 use crate::tokens::TokenCounter;
+
+/// A resolved cutting plan, in content tokens (specials and prefix already taken off).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct CutPlan {
+    /// Where boundaries may fall.
+    pub boundary: Boundary,
+    /// Content tokens one chunk may hold.
+    pub budget_tokens: usize,
+    /// Tokens a chunk should share with the one before (at most).
+    pub overlap_tokens: usize,
+    /// A last chunk adding fewer tokens than this is merged back.
+    pub min_chunk_tokens: usize,
+}
 
 /// A profile whose numbers have been checked against a model.
 #[derive(Debug, Clone, PartialEq)]

@@ -12,7 +12,7 @@ use crate::profile::{Boundary, Profile};
 
 /// Errors in a grid description.
 #[derive(Debug, thiserror::Error)]
-#[error("--grid: {0}")]
+#[error("grid: {0}")]
 pub struct GridError(pub String);
 
 /// The values to sweep along each dimension.

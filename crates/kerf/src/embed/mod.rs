@@ -10,64 +10,7 @@ pub mod packed;
 
 pub use bert::BertEmbedder;
 
-/// How token vectors inside one input become one vector.
-#[derive(
-    Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, Hash,
-)]
-#[serde(rename_all = "kebab-case")]
-pub enum TokenPooling {
-    /// Average over the attention mask, specials included (the sentence-embedding default).
-    #[default]
-    Mean,
-    /// The first ([CLS]) token's vector.
-    Cls,
-    /// Per-dimension maximum over the tokens.
-    Max,
-}
-
-/// Arithmetic of the forward pass.
-#[derive(
-    Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, Hash,
-)]
-#[serde(rename_all = "kebab-case")]
-pub enum Precision {
-    /// 32-bit floats.
-    #[default]
-    F32,
-    /// bfloat16 weights with f32 arithmetic: the accuracy of bf16, not yet its speed (no kernel
-    /// for bf16 dot-product instructions; notes/encoder-speed.md).
-    Bf16,
-    /// 8-bit weights (per output column) and activations (per row, quantised as they arrive)
-    /// with 32-bit integer sums, in the dense layers; attention stays f32.
-    Int8,
-}
-
-impl Precision {
-    /// Every precision, widest first.
-    pub const ALL: [Precision; 3] = [Precision::F32, Precision::Bf16, Precision::Int8];
-
-    /// The name profiles use.
-    pub fn name(self) -> &'static str {
-        match self {
-            Precision::F32 => "f32",
-            Precision::Bf16 => "bf16",
-            Precision::Int8 => "int8",
-        }
-    }
-}
-
-/// Which forward pass runs the model.
-#[derive(
-    Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, Hash,
-)]
-#[serde(rename_all = "kebab-case")]
-pub enum Engine {
-    /// kerf's padding-free packed forward pass (the default).
-    #[default]
-    Packed,
-    /// candle-transformers' stock BERT, padded batches: the correctness reference.
-    Candle,
-}
+pub use crate::profile::{Engine, Precision, TokenPooling};
 
 /// Options for building an embedder.
 #[derive(Debug, Clone, PartialEq)]

@@ -11,6 +11,7 @@ use serde::Serialize;
 use super::metrics::{self, Summary};
 use super::refs::Reference;
 use crate::corpus::Document;
+use crate::job::{embed_cached, JobError};
 use crate::plan::ResolvedPlan;
 use crate::pool::{self, ChunkPooling};
 use crate::split::{self, Chunk};
@@ -107,21 +108,51 @@ pub fn score_all(
     how: ChunkPooling,
     temperature: f32,
 ) -> Vec<Vec<DocScore>> {
+    let refs: Vec<&[f32]> = refs.iter().map(Vec::as_slice).collect();
+    let chunk_vectors: Vec<Vec<&[f32]>> = chunk_vectors
+        .iter()
+        .map(|vs| vs.iter().map(Vec::as_slice).collect())
+        .collect();
+    score_views(corpus, &refs, &chunk_vectors, chunks, how, temperature)
+        .into_iter()
+        .map(|s| s.ranking)
+        .collect()
+}
+
+/// One reference scored against a plan's chunks.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RefScores {
+    /// Documents best first (see [`rank_documents`]).
+    pub ranking: Vec<DocScore>,
+    /// Cosine of the reference to every chunk, `[doc][chunk]`.
+    pub chunk_cos: Vec<Vec<f32>>,
+}
+
+/// The one scoring path of compare, sweep and the terminal UI: every reference against every
+/// chunk (vectors borrowed, `chunk_vectors[doc][chunk]`), documents pooled under `how`.
+pub fn score_views(
+    corpus: &Corpus,
+    refs: &[&[f32]],
+    chunk_vectors: &[Vec<&[f32]>],
+    chunks: &[Vec<Chunk>],
+    how: ChunkPooling,
+    temperature: f32,
+) -> Vec<RefScores> {
     let doc_vecs: Vec<Option<Vec<f32>>> = chunk_vectors
         .iter()
         .zip(chunks)
-        .map(|(vs, cs)| {
-            let views: Vec<&[f32]> = vs.iter().map(|v| v.as_slice()).collect();
-            pool::doc_vector(how, &views, &new_tokens(cs), temperature)
-        })
+        .map(|(vs, cs)| pool::doc_vector(how, vs, &new_tokens(cs), temperature))
         .collect();
     refs.par_iter()
         .map(|q| {
-            let cos: Vec<Vec<f32>> = chunk_vectors
+            let chunk_cos: Vec<Vec<f32>> = chunk_vectors
                 .iter()
                 .map(|vs| vs.iter().map(|v| pool::cosine(q, v)).collect())
                 .collect();
-            rank_documents(corpus, q, &cos, &doc_vecs, how)
+            RefScores {
+                ranking: rank_documents(corpus, q, &chunk_cos, &doc_vecs, how),
+                chunk_cos,
+            }
         })
         .collect()
 }
@@ -247,15 +278,28 @@ pub fn embed_refs(
     embedder: &dyn crate::embed::Embedder,
     cache: Option<&crate::cache::VectorCache>,
     refs: &[Reference],
-) -> anyhow::Result<Vec<Vec<f32>>> {
+) -> Result<Vec<Vec<f32>>, JobError> {
     let mut out = vec![Vec::new(); refs.len()];
     let mut prefixes: Vec<&str> = refs.iter().map(|r| r.prefix.as_str()).collect();
     prefixes.sort();
     prefixes.dedup();
     for p in prefixes {
         let idx: Vec<usize> = (0..refs.len()).filter(|&i| refs[i].prefix == p).collect();
-        let texts: Vec<&str> = idx.iter().map(|&i| refs[i].text.as_str()).collect();
-        let (v, _) = crate::cache::embed_with_cache(embedder, cache, p, &texts, &mut |_, _| {})?;
+        let inputs = idx
+            .iter()
+            .map(|&i| {
+                let t = refs[i].text.as_str();
+                Ok((t, embedder.count_tokens(&format!("{p}{t}"))?))
+            })
+            .collect::<Result<Vec<(&str, usize)>, crate::embed::EmbedError>>()?;
+        let (v, _) = embed_cached(
+            embedder,
+            cache,
+            p,
+            &inputs,
+            REF_BATCH_TOKENS,
+            &mut |_, _| {},
+        )?;
         for (i, v) in idx.into_iter().zip(v) {
             out[i] = v;
         }
@@ -263,7 +307,10 @@ pub fn embed_refs(
     Ok(out)
 }
 
-/// Chunk vectors of a corpus under a plan, through the cache.
+/// Tokens per encoder batch when compare, sweep and explore embed (as `kerf embed`'s default).
+pub const REF_BATCH_TOKENS: usize = 8192;
+
+/// Chunk vectors of a corpus under a plan, through the cache; also how many were embedded now.
 pub fn embed_chunks(
     corpus: &Corpus,
     chunks: &[Vec<Chunk>],
@@ -271,18 +318,26 @@ pub fn embed_chunks(
     embedder: &dyn crate::embed::Embedder,
     cache: Option<&crate::cache::VectorCache>,
     progress: &mut dyn FnMut(usize, usize),
-) -> anyhow::Result<(Vec<Vec<Vec<f32>>>, usize)> {
-    let texts: Vec<&str> = corpus
+) -> Result<(Vec<Vec<Vec<f32>>>, usize), JobError> {
+    let inputs: Vec<(&str, usize)> = corpus
         .docs
         .iter()
         .zip(chunks)
-        .flat_map(|(d, cs)| cs.iter().map(move |c| &d.text[c.byte_range.clone()]))
+        .flat_map(|(d, cs)| {
+            cs.iter().map(move |c| {
+                (
+                    &d.text[c.byte_range.clone()],
+                    plan.input_tokens(c.content_tokens),
+                )
+            })
+        })
         .collect();
-    let (flat, report) = crate::cache::embed_with_cache(
+    let (flat, report) = embed_cached(
         embedder,
         cache,
         &plan.profile.cut.prefix,
-        &texts,
+        &inputs,
+        REF_BATCH_TOKENS,
         progress,
     )?;
     Ok((unflatten(chunks, flat), report.embedded))
@@ -299,7 +354,7 @@ pub fn evaluate_plan(
     embedder: &dyn crate::embed::Embedder,
     cache: Option<&crate::cache::VectorCache>,
     progress: &mut dyn FnMut(usize, usize),
-) -> anyhow::Result<PlanEval> {
+) -> Result<PlanEval, JobError> {
     let chunks = cut_corpus(corpus, plan, counter);
     let (vectors, embedded) = embed_chunks(corpus, &chunks, plan, embedder, cache, progress)?;
     Ok(score_plan(
