@@ -246,7 +246,8 @@ fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderF
             Ok::<_, anyhow::Error>(e.clone())
         }));
     }
-    let dir = loaded.info.dir.clone();
+    let info = loaded.info.clone();
+    let dir = info.dir.clone();
     let base = EmbedOptions {
         pooling: None,
         normalize: None,
@@ -262,14 +263,14 @@ fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderF
             precision: encoding.precision,
             ..base.clone()
         };
-        Ok(Arc::new(BertEmbedder::load(&dir, &opts).with_context(
-            || {
+        Ok(Arc::new(
+            BertEmbedder::from_model(&info, &opts).with_context(|| {
                 format!(
                     "loading the encoder from {} (scripts/fetch-model fetches the default model)",
                     dir.display()
                 )
-            },
-        )?))
+            })?,
+        ))
     };
     // Load the first encoder now, so a missing or broken model is reported before the screen
     // changes.

@@ -148,8 +148,8 @@ pub fn load_embedder(
         precision: p.pool.precision,
         engine: enc.engine,
     };
-    Ok(std::sync::Arc::new(kerf::embed::BertEmbedder::load(
-        &loaded.info.dir,
+    Ok(std::sync::Arc::new(kerf::embed::BertEmbedder::from_model(
+        &loaded.info,
         &opts,
     )?))
 }

@@ -57,6 +57,9 @@ pub struct ModelInfo {
     pub pooling: Option<DeclaredPooling>,
     /// Whether modules.json lists a Normalize step.
     pub normalize: bool,
+    /// config.json as read, for the encoder (the folder's JSON files are read once, here).
+    #[serde(skip)]
+    pub config: Value,
 }
 
 impl ModelInfo {
@@ -216,6 +219,7 @@ pub fn inspect(dir: &Path) -> Result<(ModelInfo, TokenCounter), ModelError> {
                 tokenizer_vocab_size: counter.vocab_size(),
                 pooling,
                 normalize,
+                config: config.unwrap_or(Value::Null),
             };
             Ok((info, counter))
         }

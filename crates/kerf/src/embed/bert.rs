@@ -12,6 +12,7 @@ use tokenizers::{Tokenizer, TruncationParams};
 
 use super::packed::{self, PackedModel};
 use super::{EmbedError, EmbedOptions, EmbedStats, Embedder, Engine, Precision, TokenPooling};
+use crate::model::ModelInfo;
 
 /// The forward pass behind a [`BertEmbedder`].
 enum Runner {
@@ -40,11 +41,6 @@ fn file_err(path: &Path, reason: impl ToString) -> EmbedError {
         path: path.to_path_buf(),
         reason: reason.to_string(),
     }
-}
-
-fn read_json(path: &Path) -> Result<serde_json::Value, EmbedError> {
-    let text = std::fs::read_to_string(path).map_err(|e| file_err(path, e))?;
-    serde_json::from_str(&text).map_err(|e| file_err(path, format!("malformed JSON: {e}")))
 }
 
 /// Shapes every BERT checkpoint must have, checked before loading so a bad file gets a message
@@ -129,29 +125,31 @@ fn check_tensors(path: &Path, bytes: &[u8], c: &Config) -> Result<(), EmbedError
 }
 
 impl BertEmbedder {
-    /// Load a model folder: config.json, model.safetensors (memory-mapped), tokenizer.json and,
-    /// where present, 1_Pooling/config.json and modules.json.
+    /// Load a model folder: its JSON files through [`crate::model::inspect`], then
+    /// model.safetensors (memory-mapped) and tokenizer.json.
     pub fn load(dir: &Path, opts: &EmbedOptions) -> Result<Self, EmbedError> {
+        let (info, _) = crate::model::inspect(dir)?;
+        Self::from_model(&info, opts)
+    }
+
+    /// Load the encoder of a folder already read by [`crate::model::inspect`]: its config and
+    /// declared pooling come from `info`; only the weights and the tokenizer are read here.
+    pub fn from_model(info: &ModelInfo, opts: &EmbedOptions) -> Result<Self, EmbedError> {
         if opts.precision != Precision::F32 && opts.engine == Engine::Candle {
             return Err(EmbedError::Unsupported(format!(
                 "precision {:?} needs the packed engine; the candle reference runs f32 only",
                 opts.precision
             )));
         }
+        let dir = info.dir.as_path();
         let cfg_path = dir.join("config.json");
-        let raw = read_json(&cfg_path)?;
-        let model_type = raw
-            .get("model_type")
-            .and_then(|v| v.as_str())
-            .unwrap_or("")
-            .to_string();
-        if model_type != "bert" {
+        if info.model_type != "bert" {
             return Err(EmbedError::Architecture {
                 path: cfg_path,
-                model_type,
+                model_type: info.model_type.clone(),
             });
         }
-        let config: Config = serde_json::from_value(raw)
+        let config: Config = serde_json::from_value(info.config.clone())
             .map_err(|e| file_err(&cfg_path, format!("not a BERT config: {e}")))?;
         if opts.max_input_tokens == 0 || opts.max_input_tokens > config.max_position_embeddings {
             return Err(EmbedError::Mismatch(format!(
@@ -190,31 +188,12 @@ impl BertEmbedder {
             }))
             .map_err(|e| file_err(&tok_path, e))?;
 
-        let declared = read_json(&dir.join("1_Pooling/config.json")).ok();
-        let flag = |k: &str| {
-            declared
-                .as_ref()
-                .and_then(|v| v.get(k))
-                .and_then(|v| v.as_bool())
-                .unwrap_or(false)
+        let folder_pooling = match info.pooling.as_ref().map(|p| p.mode.as_str()) {
+            Some("cls") => TokenPooling::Cls,
+            Some("max") => TokenPooling::Max,
+            _ => TokenPooling::Mean,
         };
-        let folder_pooling = if flag("pooling_mode_cls_token") {
-            TokenPooling::Cls
-        } else if flag("pooling_mode_max_tokens") {
-            TokenPooling::Max
-        } else {
-            TokenPooling::Mean
-        };
-        let folder_normalize = read_json(&dir.join("modules.json"))
-            .ok()
-            .and_then(|v| v.as_array().cloned())
-            .is_some_and(|m| {
-                m.iter().any(|x| {
-                    x.get("type")
-                        .and_then(|t| t.as_str())
-                        .is_some_and(|t| t.ends_with("Normalize"))
-                })
-            });
+        let folder_normalize = info.normalize;
         let pooling = opts.pooling.unwrap_or(folder_pooling);
         let normalize = opts.normalize.unwrap_or(folder_normalize);
 

@@ -77,6 +77,9 @@ pub enum EmbedError {
     /// The forward pass failed.
     #[error("encoder failed: {0}")]
     Run(String),
+    /// The model folder is missing or its files are unusable.
+    #[error(transparent)]
+    Model(#[from] crate::model::ModelError),
 }
 
 /// Cumulative counters of an embedder.
