@@ -238,7 +238,7 @@ fn board_scrolls_through_a_30000_word_document() {
     }];
     let mut app = app_with(docs, false, (120, 40));
     app.update(Action::FocusDocument);
-    let lines = app.layout.lines.len();
+    let lines = app.board.layout.lines.len();
     assert!(lines > 2000, "{lines}");
     let first = screen(&app, 120, 40);
     for _ in 0..50 {
@@ -247,7 +247,7 @@ fn board_scrolls_through_a_30000_word_document() {
     let later = screen(&app, 120, 40);
     assert_ne!(first[5..], later[5..]);
     app.update(Action::End);
-    assert_eq!(app.scroll, lines - render::board_rows((120, 40)));
+    assert_eq!(app.board.scroll, lines - render::board_rows((120, 40)));
     let end = screen(&app, 120, 40);
     assert!(
         end.iter().skip(5).any(|l| l.trim().len() > 12),
@@ -258,7 +258,7 @@ fn board_scrolls_through_a_30000_word_document() {
     app.update(Action::Home);
     app.update(Action::NextChunk);
     app.update(Action::NextChunk);
-    assert_eq!(app.board_chunk, 2);
+    assert_eq!(app.board.chunk, 2);
     assert!(screen(&app, 120, 40)[4].contains("chunk 3/"));
 }
 
@@ -276,10 +276,11 @@ fn board_flags_oversize_sentences_and_marks_overlap() {
     let doc = (0..app.corpus.docs.len())
         .find(|&d| !app.oversize_of(d).is_empty())
         .unwrap();
-    let row = app.order.iter().position(|&d| d == doc).unwrap();
+    let row = app.stock.order.iter().position(|&d| d == doc).unwrap();
     app.update(Action::SelectRow(row));
     app.update(Action::FocusDocument);
     let line = app
+        .board
         .layout
         .lines
         .iter()
@@ -305,6 +306,7 @@ fn board_flags_oversize_sentences_and_marks_overlap() {
         app.update(Action::OverlapUp);
     }
     let overlap_line = app
+        .board
         .layout
         .lines
         .iter()

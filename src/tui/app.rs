@@ -22,9 +22,11 @@ use kerf::split;
 use kerf::tokens::TokenCounter;
 
 use super::action::{Action, Pane};
-use super::board::{build_layout, BoardLayout};
+use super::board::{build_layout, BoardView};
 use super::geometry;
+use super::plans::FitView;
 use super::plans::{cut_state, score_state, Ident, PlanState, VecId};
+use super::stock::{self, SortOrder, StockView};
 use super::worker::{Job, Report, Request};
 use kerf::profile::Encoding;
 
@@ -57,39 +59,6 @@ pub struct AppInit {
     pub problems: Vec<Notice>,
     /// Terminal size (columns, rows).
     pub size: (u16, u16),
-}
-
-/// Order of the Stock list.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum SortOrder {
-    /// As read.
-    Input,
-    /// Longest first.
-    Length,
-    /// Most tokens past the first window first.
-    Overflow,
-    /// Closest to the selected reference first (current plan).
-    Similarity,
-}
-
-impl SortOrder {
-    /// Label in the list title.
-    pub fn label(self) -> &'static str {
-        match self {
-            SortOrder::Input => "input order",
-            SortOrder::Length => "length",
-            SortOrder::Overflow => "overflow",
-            SortOrder::Similarity => "similarity",
-        }
-    }
-    fn next(self) -> Self {
-        match self {
-            SortOrder::Input => SortOrder::Length,
-            SortOrder::Length => SortOrder::Overflow,
-            SortOrder::Overflow => SortOrder::Similarity,
-            SortOrder::Similarity => SortOrder::Input,
-        }
-    }
 }
 
 /// What the prompt line asks for.
@@ -179,22 +148,12 @@ pub struct App {
     pub pane: Pane,
     /// Modal state.
     pub mode: Mode,
-    /// Stock order.
-    pub sort: SortOrder,
-    /// Document indices in Stock order.
-    pub order: Vec<usize>,
-    /// Selected row of the Stock list.
-    pub row: usize,
-    /// First visible row of the Stock list.
-    pub stock_top: usize,
-    /// Selected reference.
-    pub reference: usize,
-    /// Board layout of the selected document.
-    pub layout: BoardLayout,
-    /// First visible Board line.
-    pub scroll: usize,
-    /// Chunk the Board cursor is on.
-    pub board_chunk: usize,
+    /// The Stock pane: document list, its order and selection.
+    pub stock: StockView,
+    /// The Board pane: the selected document's layout and position.
+    pub board: BoardView,
+    /// The Fit pane: the selected reference.
+    pub fit: FitView,
     /// Terminal size.
     pub size: (u16, u16),
     /// Last message.
@@ -292,14 +251,14 @@ impl App {
             stashed_overlap: 0,
             pane: Pane::Stock,
             mode: Mode::Normal,
-            sort: SortOrder::Input,
-            order,
-            row: 0,
-            stock_top: 0,
-            reference: 0,
-            layout: BoardLayout::default(),
-            scroll: 0,
-            board_chunk: 0,
+            stock: StockView {
+                sort: SortOrder::Input,
+                order,
+                row: 0,
+                top: 0,
+            },
+            board: BoardView::default(),
+            fit: FitView::default(),
             size,
             status: None,
             quit: false,
@@ -335,7 +294,7 @@ impl App {
 
     /// Document selected in the Stock list (and shown in the Board and Fit panes).
     pub fn selected_doc(&self) -> usize {
-        self.order.get(self.row).copied().unwrap_or(0)
+        self.stock.order.get(self.stock.row).copied().unwrap_or(0)
     }
 
     /// True while the worker has jobs of ours.
@@ -373,7 +332,7 @@ impl App {
     pub fn best_chunk(&self) -> Option<usize> {
         let s = self.current.scored.as_ref()?;
         let doc = self.selected_doc();
-        let cos = s.chunk_cos.get(self.reference)?.get(doc)?;
+        let cos = s.chunk_cos.get(self.fit.reference)?.get(doc)?;
         (!cos.is_empty()).then(|| engine::best_chunk(cos))
     }
 
@@ -470,20 +429,24 @@ impl App {
             Action::Home => self.move_by(isize::MIN / 2),
             Action::End => self.move_by(isize::MAX / 2),
             Action::SelectRow(r) => {
-                if r < self.order.len() {
-                    self.row = r;
+                if r < self.stock.order.len() {
+                    self.stock.row = r;
                     self.relayout(None);
                 }
             }
             Action::NextChunk | Action::PrevChunk => {
-                let n = self.current.chunks.get(self.layout.doc).map_or(0, Vec::len);
+                let n = self
+                    .current
+                    .chunks
+                    .get(self.board.layout.doc)
+                    .map_or(0, Vec::len);
                 if n > 0 {
-                    self.board_chunk = if matches!(action, Action::NextChunk) {
-                        (self.board_chunk + 1).min(n - 1)
+                    self.board.chunk = if matches!(action, Action::NextChunk) {
+                        (self.board.chunk + 1).min(n - 1)
                     } else {
-                        self.board_chunk.saturating_sub(1)
+                        self.board.chunk.saturating_sub(1)
                     };
-                    self.scroll_to_chunk(self.board_chunk);
+                    self.scroll_to_chunk(self.board.chunk);
                 }
                 self.pane = Pane::Board;
             }
@@ -491,7 +454,7 @@ impl App {
                 Some(b) => {
                     self.pane = Pane::Board;
                     self.relayout(None);
-                    self.board_chunk = b;
+                    self.board.chunk = b;
                     self.scroll_to_chunk(b);
                 }
                 None if self.refs.is_empty() => self.say(
@@ -506,18 +469,18 @@ impl App {
             Action::NextRef | Action::PrevRef => {
                 let n = self.refs.len();
                 if n > 0 {
-                    self.reference = if matches!(action, Action::NextRef) {
-                        (self.reference + 1) % n
+                    self.fit.reference = if matches!(action, Action::NextRef) {
+                        (self.fit.reference + 1) % n
                     } else {
-                        (self.reference + n - 1) % n
+                        (self.fit.reference + n - 1) % n
                     };
-                    if self.sort == SortOrder::Similarity {
+                    if self.stock.sort == SortOrder::Similarity {
                         self.resort_keep_selection();
                     }
                 }
             }
             Action::Sort => {
-                self.sort = self.sort.next();
+                self.stock.sort = self.stock.sort.next();
                 self.resort_keep_selection();
             }
             Action::SavePrompt => {
@@ -669,7 +632,12 @@ impl App {
                 return false;
             }
         };
-        let top_byte = self.layout.lines.get(self.scroll).map(|l| l.bytes.start);
+        let top_byte = self
+            .board
+            .layout
+            .lines
+            .get(self.board.scroll)
+            .map(|l| l.bytes.start);
         self.current = cut_state(&self.corpus, &self.counter, plan);
         self.generation += 1;
         self.outbox.push(Request::Generation(self.generation));
@@ -817,7 +785,7 @@ impl App {
                     self.vectors.insert((p, k), v);
                 }
                 self.rescore();
-                if self.sort == SortOrder::Similarity {
+                if self.stock.sort == SortOrder::Similarity {
                     self.resort_keep_selection();
                 }
             }
@@ -859,33 +827,24 @@ impl App {
     }
 
     fn resort(&mut self) {
-        let n = self.corpus.docs.len();
-        let mut order: Vec<usize> = (0..n).collect();
-        let budget = self.current.plan.budget();
-        match self.sort {
-            SortOrder::Input => {}
-            SortOrder::Length => order.sort_by_key(|&d| std::cmp::Reverse(self.doc_tokens[d])),
-            SortOrder::Overflow => {
-                order.sort_by_key(|&d| std::cmp::Reverse(self.doc_tokens[d].saturating_sub(budget)))
-            }
-            SortOrder::Similarity => {
-                if let Some(s) = &self.current.scored {
-                    let mut score = vec![f32::NEG_INFINITY; n];
-                    for ds in &s.ranking[self.reference] {
-                        score[ds.doc] = ds.score;
-                    }
-                    order.sort_by(|&a, &b| score[b].total_cmp(&score[a]));
-                }
-            }
-        }
-        self.order = order;
+        let ranking = self
+            .current
+            .scored
+            .as_ref()
+            .map(|s| s.ranking[self.fit.reference].as_slice());
+        self.stock.order = stock::order(
+            self.stock.sort,
+            &self.doc_tokens,
+            self.current.plan.budget(),
+            ranking,
+        );
     }
 
     /// Re-sort the Stock list keeping the selected document selected (so the Board stays).
     fn resort_keep_selection(&mut self) {
         let doc = self.selected_doc();
         self.resort();
-        self.row = self.order.iter().position(|&d| d == doc).unwrap_or(0);
+        self.stock.row = self.stock.order.iter().position(|&d| d == doc).unwrap_or(0);
         self.clamp_stock();
     }
 
@@ -898,57 +857,23 @@ impl App {
     fn clamp_stock(&mut self) {
         let all = self.page_rows();
         let rows = (all - self.problems.len().min(all / 3)).max(1);
-        if self.row < self.stock_top {
-            self.stock_top = self.row;
-        } else if self.row >= self.stock_top + rows {
-            self.stock_top = self.row + 1 - rows;
-        }
+        self.stock.keep_in_view(rows);
     }
 
     fn move_by(&mut self, n: isize) {
         match self.pane {
             Pane::Stock | Pane::Fit => {
-                let len = self.order.len();
-                if len == 0 {
-                    return;
-                }
-                let row = (self.row as isize)
-                    .saturating_add(n)
-                    .clamp(0, len as isize - 1) as usize;
-                if row != self.row {
-                    self.row = row;
+                if self.stock.step(n) {
                     self.clamp_stock();
                     self.relayout(None);
                 }
             }
-            Pane::Board => {
-                let max = self
-                    .layout
-                    .lines
-                    .len()
-                    .saturating_sub(self.page_rows().max(1));
-                self.scroll = (self.scroll as isize)
-                    .saturating_add(n)
-                    .clamp(0, max as isize) as usize;
-                let top = self.scroll;
-                self.board_chunk = self
-                    .layout
-                    .chunk_line
-                    .partition_point(|&l| l <= top)
-                    .saturating_sub(1);
-            }
+            Pane::Board => self.board.scroll_by(n, self.page_rows()),
         }
     }
 
     fn scroll_to_chunk(&mut self, chunk: usize) {
-        if let Some(&line) = self.layout.chunk_line.get(chunk) {
-            let max = self
-                .layout
-                .lines
-                .len()
-                .saturating_sub(self.page_rows().max(1));
-            self.scroll = line.saturating_sub(2).min(max);
-        }
+        self.board.scroll_to_chunk(chunk, self.page_rows());
     }
 
     /// Re-wrap the selected document when the plan, the document or the size changed. With
@@ -960,34 +885,42 @@ impl App {
             return;
         }
         let width = geometry::board_text_width(self.size);
-        let same_doc = self.layout.doc == doc && !self.layout.lines.is_empty();
+        let same_doc = self.board.layout.doc == doc && !self.board.layout.lines.is_empty();
         let keep = keep_byte.filter(|_| same_doc).or_else(|| {
-            (same_doc && self.layout.width != width)
-                .then(|| self.layout.lines.get(self.scroll).map(|l| l.bytes.start))
+            (same_doc && self.board.layout.width != width)
+                .then(|| {
+                    self.board
+                        .layout
+                        .lines
+                        .get(self.board.scroll)
+                        .map(|l| l.bytes.start)
+                })
                 .flatten()
         });
-        self.layout = build_layout(
+        self.board.layout = build_layout(
             &self.corpus.docs[doc].text,
             &self.current.chunks[doc],
             &self.oversize_of(doc),
             width,
         );
-        self.layout.doc = doc;
+        self.board.layout.doc = doc;
         match keep {
             Some(b) => {
-                self.scroll = self
+                self.board.scroll = self
+                    .board
                     .layout
                     .lines
                     .partition_point(|l| l.bytes.start <= b)
                     .saturating_sub(1);
             }
             None if same_doc => {}
-            None => self.scroll = 0,
+            None => self.board.scroll = 0,
         }
-        let max = self.layout.lines.len().saturating_sub(1);
-        self.scroll = self.scroll.min(max);
-        let top = self.scroll;
-        self.board_chunk = self
+        let max = self.board.layout.lines.len().saturating_sub(1);
+        self.board.scroll = self.board.scroll.min(max);
+        let top = self.board.scroll;
+        self.board.chunk = self
+            .board
             .layout
             .chunk_line
             .partition_point(|&l| l <= top)

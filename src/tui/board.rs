@@ -5,6 +5,42 @@ use std::ops::Range;
 
 use kerf::split::Chunk;
 
+/// The Board pane's state: the selected document's layout and where the view is.
+#[derive(Debug, Clone, Default)]
+pub struct BoardView {
+    /// Board layout of the selected document.
+    pub layout: BoardLayout,
+    /// First visible Board line.
+    pub scroll: usize,
+    /// Chunk the Board cursor is on.
+    pub chunk: usize,
+}
+
+impl BoardView {
+    /// Scroll by `n` lines, keeping a page of `page_rows` inside the text; the cursor follows
+    /// to the chunk that starts at or above the top line.
+    pub fn scroll_by(&mut self, n: isize, page_rows: usize) {
+        let max = self.layout.lines.len().saturating_sub(page_rows.max(1));
+        self.scroll = (self.scroll as isize)
+            .saturating_add(n)
+            .clamp(0, max as isize) as usize;
+        let top = self.scroll;
+        self.chunk = self
+            .layout
+            .chunk_line
+            .partition_point(|&l| l <= top)
+            .saturating_sub(1);
+    }
+
+    /// Scroll so `chunk` starts near the top (two lines of context above it).
+    pub fn scroll_to_chunk(&mut self, chunk: usize, page_rows: usize) {
+        if let Some(&line) = self.layout.chunk_line.get(chunk) {
+            let max = self.layout.lines.len().saturating_sub(page_rows.max(1));
+            self.scroll = line.saturating_sub(2).min(max);
+        }
+    }
+}
+
 /// How a stretch of the Board's text is drawn.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Seg {

@@ -113,8 +113,8 @@ fn mouse(m: &MouseEvent, app: &App) -> Option<Action> {
                     .map(|(_, _, p)| Action::ShowPane(p));
             }
             if app.pane == Pane::Stock && m.row > a.body.y && m.row < a.body.bottom() {
-                let r = app.stock_top + (m.row - a.body.y - 1) as usize;
-                return (r < app.order.len()).then_some(Action::SelectRow(r));
+                let r = app.stock.top + (m.row - a.body.y - 1) as usize;
+                return (r < app.stock.order.len()).then_some(Action::SelectRow(r));
             }
             None
         }

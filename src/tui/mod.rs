@@ -13,6 +13,7 @@ pub mod geometry;
 pub mod keys;
 pub mod plans;
 pub mod render;
+pub mod stock;
 pub mod worker;
 
 pub use action::Action;

@@ -11,6 +11,13 @@ use kerf::profile::Encoding;
 use kerf::split::Chunk;
 use kerf::tokens::TokenCounter;
 
+/// The Fit pane's state: which reference the scores are shown for.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct FitView {
+    /// Selected reference.
+    pub reference: usize,
+}
+
 /// Scores of a plan for every reference.
 #[derive(Debug, Clone)]
 pub struct Scored {

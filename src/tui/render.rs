@@ -322,7 +322,7 @@ fn stock(app: &App, area: Rect, buf: &mut Buffer) {
     let budget = app.current.plan.budget();
     let title = Line::from(vec![
         Span::styled(" Documents", Style::new().add_modifier(Modifier::BOLD)),
-        Span::styled(format!(" sorted by {} (s)", app.sort.label()), DIM),
+        Span::styled(format!(" sorted by {} (s)", app.stock.sort.label()), DIM),
         Span::styled("   █ first window  ", Style::new().fg(BAR_SEEN)),
         Span::styled("░ never seen by truncation", Style::new().fg(BAR_UNSEEN[0])),
         Span::styled(
@@ -342,14 +342,15 @@ fn stock(app: &App, area: Rect, buf: &mut Buffer) {
     let per_cell = cell_tokens(app, bar_w).max(1);
     let scored = app.current.scored.as_ref();
     for (i, &d) in app
+        .stock
         .order
         .iter()
         .enumerate()
-        .skip(app.stock_top)
+        .skip(app.stock.top)
         .take(doc_rows)
     {
-        let y = area.y + 1 + (i - app.stock_top) as u16;
-        let selected = i == app.row;
+        let y = area.y + 1 + (i - app.stock.top) as u16;
+        let selected = i == app.stock.row;
         let n = app.doc_tokens[d];
         let chunks = app.current.chunks[d].len();
         let mut spans = vec![
@@ -379,7 +380,7 @@ fn stock(app: &App, area: Rect, buf: &mut Buffer) {
         }
         spans.push(Span::raw(" ".repeat(bar_w - cells + 1)));
         if let Some(s) = scored {
-            if let Some((rank, score)) = s.rank_score(app.reference, d) {
+            if let Some((rank, score)) = s.rank_score(app.fit.reference, d) {
                 spans.push(Span::styled(
                     format!("{score:.3} #{rank}"),
                     Style::new().fg(Color::Green),
@@ -406,9 +407,9 @@ fn stock(app: &App, area: Rect, buf: &mut Buffer) {
     if app.corpus.docs.len() > doc_rows {
         let more = format!(
             " {}-{} of {} ",
-            app.stock_top + 1,
-            (app.stock_top + doc_rows).min(app.order.len()),
-            app.order.len()
+            app.stock.top + 1,
+            (app.stock.top + doc_rows).min(app.stock.order.len()),
+            app.stock.order.len()
         );
         let x = area.right().saturating_sub(more.chars().count() as u16);
         buf.set_string(x, area.y, more, DIM);
@@ -428,7 +429,7 @@ fn cell_tokens(app: &App, bar_w: usize) -> usize {
 }
 
 fn board(app: &App, area: Rect, buf: &mut Buffer) {
-    let l = &app.layout;
+    let l = &app.board.layout;
     let doc = l.doc;
     let Some(d) = app.corpus.docs.get(doc) else {
         return;
@@ -443,13 +444,13 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
         Span::styled(
             format!(
                 " chunk {}/{}",
-                (app.board_chunk + 1).min(chunks.len()),
+                (app.board.chunk + 1).min(chunks.len()),
                 chunks.len()
             ),
             Style::new().fg(Color::Cyan),
         ),
     ];
-    if let Some(c) = chunks.get(app.board_chunk) {
+    if let Some(c) = chunks.get(app.board.chunk) {
         title.push(Span::styled(
             format!(
                 " · {} tokens, {} overlap · lines {}-{}",
@@ -461,7 +462,7 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
             DIM,
         ));
     }
-    if let (Some(b), Some(r)) = (best, app.refs.get(app.reference)) {
+    if let (Some(b), Some(r)) = (best, app.refs.get(app.fit.reference)) {
         title.push(Span::styled(
             format!(" · best for {}: #{b} (x)", r.id),
             Style::new().fg(Color::Green),
@@ -472,8 +473,8 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
     let rows = area.height.saturating_sub(1) as usize;
     let text_x = area.x + GUTTER;
     let text_w = area.width.saturating_sub(GUTTER + 1);
-    for (i, line) in l.lines.iter().enumerate().skip(app.scroll).take(rows) {
-        let y = area.y + 1 + (i - app.scroll) as u16;
+    for (i, line) in l.lines.iter().enumerate().skip(app.board.scroll).take(rows) {
+        let y = area.y + 1 + (i - app.board.scroll) as u16;
         // Gutter: chunk index and encoder tokens where a chunk starts; its shade elsewhere.
         let chunk_here = line.segs.iter().find_map(|s| s.chunk).or_else(|| {
             chunks
@@ -546,7 +547,7 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
     let total = l.lines.len().max(1);
     if rows > 0 {
         let bar_x = area.right().saturating_sub(1);
-        let thumb = (app.scroll * rows / total).min(rows - 1);
+        let thumb = (app.board.scroll * rows / total).min(rows - 1);
         let thumb_len = (rows * rows / total).clamp(1, rows);
         for r in 0..rows {
             let on = r >= thumb && r < thumb + thumb_len;
@@ -605,7 +606,7 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         .render(area, buf);
         return;
     }
-    let r = &app.refs[app.reference];
+    let r = &app.refs[app.fit.reference];
     let cmp = app.comparison();
     let cmp_kind = if app.pinned.is_some() {
         "pinned"
@@ -614,7 +615,11 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
     };
     let line0 = Line::from(vec![
         Span::styled(
-            format!(" Reference {}/{} (r/R) ", app.reference + 1, app.refs.len()),
+            format!(
+                " Reference {}/{} (r/R) ",
+                app.fit.reference + 1,
+                app.refs.len()
+            ),
             Style::new().fg(Color::Black).bg(Color::Yellow),
         ),
         Span::styled(
@@ -684,7 +689,7 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
     );
     let strip_rows = (app.refs.len() + 2).min((area.height as usize).saturating_sub(6) / 2);
     let table_rows = (area.height as usize).saturating_sub(3 + strip_rows);
-    let ranking = &now.ranking[app.reference];
+    let ranking = &now.ranking[app.fit.reference];
     let sel = app.selected_doc();
     let sel_pos = ranking.iter().position(|x| x.doc == sel).unwrap_or(0);
     let first = sel_pos.saturating_sub(table_rows.saturating_sub(1));
@@ -692,7 +697,7 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         let y = area.y + 3 + (i - first) as u16;
         let id = &app.corpus.docs[ds.doc].id;
         let expected = r.expect.get(id).is_some_and(|&g| g > 0);
-        let was = then.rank_score(app.reference, ds.doc);
+        let was = then.rank_score(app.fit.reference, ds.doc);
         let mut spans = vec![
             Span::raw(format!(" {:>4}  ", i + 1)),
             Span::styled(
@@ -769,10 +774,10 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         });
     const LEVELS: [&str; 8] = ["▁", "▂", "▃", "▄", "▅", "▆", "▇", "█"];
     let shown = strip_rows.saturating_sub(1);
-    let first_ref = app.reference.saturating_sub(shown.saturating_sub(1));
+    let first_ref = app.fit.reference.saturating_sub(shown.saturating_sub(1));
     for (ri, c) in cos.iter().enumerate().skip(first_ref).take(shown) {
         let y = y0 + 1 + (ri - first_ref) as u16;
-        let selected = ri == app.reference;
+        let selected = ri == app.fit.reference;
         let lab = truncate(&app.refs[ri].id, label_w - 1);
         buf.set_stringn(
             area.x + 1,

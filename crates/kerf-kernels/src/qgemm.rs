@@ -45,7 +45,7 @@ pub const W_MAX: i32 = 63;
 const _: () = assert!(2 * ACT_MAX * W_MAX <= i16::MAX as i32);
 
 /// A weight matrix (`k` inner by `n` outputs) quantised per output column, in panels of
-/// [`NR`] columns, each `k_padded / 4` groups of `NR x 4` codes (column-major inside a group).
+/// `NR` columns, each `k_padded / 4` groups of `NR x 4` codes (column-major inside a group).
 #[derive(Clone, Debug)]
 pub struct PackedI8 {
     k: usize,

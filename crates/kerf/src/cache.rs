@@ -18,12 +18,19 @@ pub enum CacheError {
     /// SQLite failed.
     #[error("vector cache {path}: {source}")]
     Sql {
+        /// The file or folder concerned.
         path: PathBuf,
+        /// What the operating system or library said.
         source: rusqlite::Error,
     },
     /// The file is damaged.
     #[error("vector cache {path} is corrupt ({detail})")]
-    Corrupt { path: PathBuf, detail: String },
+    Corrupt {
+        /// The file or folder concerned.
+        path: PathBuf,
+        /// What is wrong.
+        detail: String,
+    },
 }
 
 /// A handle on the cache file.

@@ -12,26 +12,44 @@ use std::path::{Path, PathBuf};
 pub enum CorpusError {
     /// A path given on the command line does not exist.
     #[error("{path}: no such file or folder")]
-    Missing { path: PathBuf },
+    Missing {
+        /// The file or folder concerned.
+        path: PathBuf,
+    },
     /// Reading failed.
     #[error("{path}: {source}")]
     Io {
+        /// The file or folder concerned.
         path: PathBuf,
+        /// What the operating system or library said.
         source: std::io::Error,
     },
     /// The bytes are not UTF-8.
     #[error("{path}: invalid UTF-8 at byte {offset}")]
-    Utf8 { path: PathBuf, offset: usize },
+    Utf8 {
+        /// The file or folder concerned.
+        path: PathBuf,
+        /// Byte offset of the first bad byte.
+        offset: usize,
+    },
     /// A JSONL line is not a JSON object with the text field.
     #[error("{path}:{line}: {reason}")]
     Jsonl {
+        /// The file or folder concerned.
         path: PathBuf,
+        /// Line number, from 1.
         line: usize,
+        /// What is wrong.
         reason: String,
     },
     /// Two documents share an id.
     #[error("duplicate document id `{id}` (from {path}); ids must be unique")]
-    DuplicateId { id: String, path: PathBuf },
+    DuplicateId {
+        /// The id.
+        id: String,
+        /// The file or folder concerned.
+        path: PathBuf,
+    },
 }
 
 /// How inputs are read.

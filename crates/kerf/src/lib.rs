@@ -1,3 +1,4 @@
+#![warn(missing_docs)]
 //! kerf: plan how long documents are cut, embedded and pooled for windowed transformer encoders.
 //!
 //! One module per pipeline stage: [`model`] reads a model folder's limits, [`tokens`] counts

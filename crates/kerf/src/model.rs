@@ -17,10 +17,18 @@ pub use crate::home::{default_model_dir, kerf_home, DEFAULT_MODEL_NAME, FETCH_CO
 pub enum ModelError {
     /// The folder itself is missing.
     #[error("model folder {dir} does not exist (run {FETCH_COMMAND} to fetch the default model, or point the profile's [model] folder at a model folder)")]
-    MissingFolder { dir: PathBuf },
+    MissingFolder {
+        /// The folder.
+        dir: PathBuf,
+    },
     /// One or more files are missing or malformed; each entry names its file.
     #[error("model folder {dir} is not usable:\n  - {}", problems.join("\n  - "))]
-    Problems { dir: PathBuf, problems: Vec<String> },
+    Problems {
+        /// The folder.
+        dir: PathBuf,
+        /// Each problem, naming its file.
+        problems: Vec<String>,
+    },
 }
 
 /// Token pooling a folder declares in 1_Pooling/config.json.

@@ -55,7 +55,7 @@ pub enum TokenPooling {
     /// Average over the attention mask, specials included (the sentence-embedding default).
     #[default]
     Mean,
-    /// The first ([CLS]) token's vector.
+    /// The first (`[CLS]`) token's vector.
     Cls,
     /// Per-dimension maximum over the tokens.
     Max,
@@ -158,15 +158,27 @@ pub enum ProfileError {
     /// The file could not be read.
     #[error("{path}: cannot read profile: {source}")]
     Read {
+        /// The file or folder concerned.
         path: PathBuf,
+        /// What the operating system or library said.
         source: std::io::Error,
     },
     /// TOML syntax or an unknown/mistyped key (the message carries line and column).
     #[error("{origin}: {message}")]
-    Parse { origin: String, message: String },
+    Parse {
+        /// Where it came from (file, or a label).
+        origin: String,
+        /// What is wrong.
+        message: String,
+    },
     /// A value that cannot work.
     #[error("{origin}: {message}")]
-    Invalid { origin: String, message: String },
+    Invalid {
+        /// Where it came from (file, or a label).
+        origin: String,
+        /// What is wrong.
+        message: String,
+    },
 }
 
 /// `[model]`: which model folder to use.

@@ -13,10 +13,20 @@ use tokenizers::Tokenizer;
 pub enum TokensError {
     /// tokenizer.json could not be read or parsed.
     #[error("{path}: cannot load tokenizer: {reason}")]
-    Load { path: PathBuf, reason: String },
+    Load {
+        /// The file or folder concerned.
+        path: PathBuf,
+        /// What is wrong.
+        reason: String,
+    },
     /// Encoding a text failed inside the tokenizer.
     #[error("tokenizer failed on {what}: {reason}")]
-    Encode { what: String, reason: String },
+    Encode {
+        /// The text (cut short).
+        what: String,
+        /// What is wrong.
+        reason: String,
+    },
 }
 
 /// What the tokenizer file itself would have done to every input, before kerf turned it off.
@@ -88,7 +98,7 @@ impl TokenCounter {
         })
     }
 
-    /// Special tokens the post-processor adds to each input ([CLS] and [SEP] for BERT).
+    /// Special tokens the post-processor adds to each input (`[CLS]` and `[SEP]` for BERT).
     pub fn specials_per_input(&self) -> usize {
         self.specials_per_input
     }

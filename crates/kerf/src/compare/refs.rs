@@ -31,12 +31,19 @@ pub enum RefsError {
     /// The file could not be read.
     #[error("{path}: {source}")]
     Read {
+        /// The file or folder concerned.
         path: String,
+        /// What the operating system or library said.
         source: std::io::Error,
     },
     /// Syntax or content problem, with its line where known.
     #[error("{origin}: {message}")]
-    Bad { origin: String, message: String },
+    Bad {
+        /// Where it came from (file, or a label).
+        origin: String,
+        /// What is wrong.
+        message: String,
+    },
 }
 
 #[derive(Deserialize)]

@@ -52,20 +52,27 @@ pub enum EmbedError {
     /// A model file is missing or unreadable.
     #[error("{path}: {reason}")]
     File {
+        /// The file or folder concerned.
         path: std::path::PathBuf,
+        /// What is wrong.
         reason: String,
     },
     /// config.json names an architecture this encoder does not run.
     #[error("{path}: model_type `{model_type}` is not supported (kerf runs BERT-family encoders: model_type \"bert\")")]
     Architecture {
+        /// The file or folder concerned.
         path: std::path::PathBuf,
+        /// The architecture config.json names.
         model_type: String,
     },
     /// A weight tensor is missing or has the wrong shape.
     #[error("{path}: tensor `{name}` {problem}")]
     Tensor {
+        /// The file or folder concerned.
         path: std::path::PathBuf,
+        /// Tensor name.
         name: String,
+        /// What is wrong with it.
         problem: String,
     },
     /// Tokenizer and weights disagree.

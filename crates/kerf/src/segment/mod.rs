@@ -20,7 +20,7 @@
 //! only over short windows around possible terminals (with the same result as over the whole
 //! text, which a property test checks).
 //!
-//! Files: [`blocks`] finds paragraphs from the line structure, `sentences` cuts prose into
+//! Files: `blocks` finds paragraphs from the line structure, `sentences` cuts prose into
 //! sentences, `lexicon` holds the word lists the sentence rules consult.
 use std::ops::Range;
 
