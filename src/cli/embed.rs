@@ -125,6 +125,20 @@ pub fn progress_bar(
     Some(bar)
 }
 
+/// A flag that SIGINT and SIGTERM set, so the job stops between batches and cleans up; and
+/// SIGXFSZ (a file size limit reached) caught, so the write fails with an error naming the file
+/// rather than the process dying with its partial output in place.
+fn stop_flag() -> Result<std::sync::Arc<std::sync::atomic::AtomicBool>> {
+    use signal_hook::consts::{SIGINT, SIGTERM, SIGXFSZ};
+    let stop = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
+    for sig in [SIGINT, SIGTERM] {
+        signal_hook::flag::register(sig, stop.clone()).context("installing a signal handler")?;
+    }
+    let size_limit = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
+    signal_hook::flag::register(SIGXFSZ, size_limit).context("installing a signal handler")?;
+    Ok(stop)
+}
+
 pub fn run(a: EmbedArgs) -> Result<()> {
     if a.plan.profile.is_none() {
         anyhow::bail!("kerf embed needs --profile FILE (see profiles/ for ready-made plans)");
@@ -152,21 +166,30 @@ pub fn run(a: EmbedArgs) -> Result<()> {
         Format::Npy => store::Format::Npy,
         Format::Parquet => store::Format::Parquet,
     };
+    let stop = stop_flag()?;
     let mut sink = FolderSink::create(&a.out, a.force, format, embedder.dim())?;
     let mut stream = a.input.open()?;
     let bar = progress_bar(0, a.encoder.quiet, "embedding");
-    let report = job.run(stream.by_ref(), &mut sink, &mut |p| {
-        if let Some(b) = &bar {
-            b.set_position(p.tokens as u64);
-            b.set_message(format!(
-                "{} documents · {} chunks · {} embedded, {} from cache",
-                p.documents, p.chunks, p.cache.embedded, p.cache.cached
-            ));
-        }
-    })?;
+    let result = job.run_until(
+        stream.by_ref(),
+        &mut sink,
+        &mut |p| {
+            if let Some(b) = &bar {
+                b.set_position(p.tokens as u64);
+                b.set_message(format!(
+                    "{} documents · {} chunks · {} embedded, {} from cache",
+                    p.documents, p.chunks, p.cache.embedded, p.cache.cached
+                ));
+            }
+        },
+        &stop,
+    );
     if let Some(b) = bar {
         b.finish_and_clear();
     }
+    // On any error the sink is dropped unfinished: its partial folder is removed and nothing
+    // appears under the output's name.
+    let report = result?;
     report_notices(&stream.notices);
     sink.finish(job.manifest(&loaded.info.dir, &report))?;
     let mut err = std::io::stderr().lock();

@@ -194,6 +194,15 @@ fn is_broken_pipe(e: &anyhow::Error) -> bool {
     })
 }
 
+fn is_stopped(e: &anyhow::Error) -> bool {
+    e.chain().any(|c| {
+        matches!(
+            c.downcast_ref::<kerf::job::JobError>(),
+            Some(kerf::job::JobError::Stopped)
+        )
+    })
+}
+
 /// What the user can do about a library error, in this binary's flags (the library's messages
 /// say what is wrong; only the faces know their options).
 fn hint(e: &(dyn std::error::Error + 'static)) -> &'static str {
@@ -255,6 +264,11 @@ pub fn run() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
+        Err(e) if is_stopped(&e) => {
+            eprintln!("kerf: stopped: {e}; run the same command again to resume");
+            // 128 + SIGINT, as shells report an interrupted command.
+            ExitCode::from(130)
+        }
         Err(e) => {
             let mut msg = String::new();
             for (i, cause) in e.chain().enumerate() {

@@ -3,14 +3,20 @@
 //! Planning embeds the same chunks again and again (every sweep, every key press in the
 //! explorer); the cache makes that cheap. Writes happen in transactions, so a killed run leaves
 //! a consistent store; WAL mode and a busy timeout let two kerf processes share one file. A file
-//! that fails SQLite's integrity check, or a blob of the wrong length, is reported, never used.
+//! that fails SQLite's integrity check, or a stored vector whose checksum does not match
+//! (garbage written over its bytes passes SQLite's structural check), is reported, never used.
 use std::path::{Path, PathBuf};
 
 use rusqlite::{params, Connection, OptionalExtension};
 use sha2::{Digest, Sha256};
 
-/// The on-disk schema this build reads and writes.
-const SCHEMA: i64 = 1;
+/// The on-disk schema this build reads and writes. Schema 2 appends to every vector an 8-byte
+/// checksum of model, key and vector; schema 1 files (no checksums) are emptied and upgraded on
+/// open, since their vectors cannot be verified.
+const SCHEMA: i64 = 2;
+
+/// Bytes of the checksum after each stored vector.
+const CHECK_BYTES: usize = 8;
 
 /// Errors from the cache.
 #[derive(Debug, thiserror::Error)]
@@ -48,8 +54,39 @@ pub fn text_key(prefix: &str, text: &str) -> [u8; 32] {
     h.finalize().into()
 }
 
-fn to_blob(v: &[f32]) -> Vec<u8> {
-    v.iter().flat_map(|x| x.to_le_bytes()).collect()
+fn checksum(model: &[u8], key: &[u8], vector: &[u8]) -> [u8; CHECK_BYTES] {
+    let mut h = Sha256::new();
+    h.update(model);
+    h.update(key);
+    h.update(vector);
+    let d = h.finalize();
+    let mut out = [0u8; CHECK_BYTES];
+    out.copy_from_slice(&d[..CHECK_BYTES]);
+    out
+}
+
+/// A vector as stored: f32 little-endian, then its checksum.
+fn to_blob(model: &[u8], key: &[u8], v: &[f32]) -> Vec<u8> {
+    let mut b: Vec<u8> = v.iter().flat_map(|x| x.to_le_bytes()).collect();
+    let c = checksum(model, key, &b);
+    b.extend_from_slice(&c);
+    b
+}
+
+/// The vector of a stored blob, or `None` when its length or checksum is wrong.
+fn from_blob(model: &[u8], key: &[u8], b: &[u8]) -> Option<Vec<f32>> {
+    if b.len() <= CHECK_BYTES || (b.len() - CHECK_BYTES) % 4 != 0 {
+        return None;
+    }
+    let (data, check) = b.split_at(b.len() - CHECK_BYTES);
+    if checksum(model, key, data) != check {
+        return None;
+    }
+    Some(
+        data.chunks_exact(4)
+            .map(|c| f32::from_le_bytes([c[0], c[1], c[2], c[3]]))
+            .collect(),
+    )
 }
 
 impl VectorCache {
@@ -99,6 +136,12 @@ impl VectorCache {
                 .map_err(sql)?;
             }
             Some(SCHEMA) => {}
+            Some(1) => {
+                conn.execute_batch(&format!(
+                    "DELETE FROM vectors; UPDATE meta SET value = {SCHEMA} WHERE key = 'schema';"
+                ))
+                .map_err(sql)?;
+            }
             Some(other) => {
                 return Err(corrupt(format!(
                     "schema {other}, this kerf reads schema {SCHEMA}"
@@ -155,14 +198,17 @@ impl VectorCache {
             out.push(match blob {
                 None => None,
                 Some(b) => {
-                    if b.is_empty() || b.len() % 4 != 0 || width.is_some_and(|w| w != b.len()) {
-                        return Err(CacheError::Corrupt {
+                    let v = from_blob(&model, k, &b)
+                        .filter(|v| width.is_none_or(|w| w == v.len()))
+                        .ok_or_else(|| CacheError::Corrupt {
                             path: self.path.clone(),
-                            detail: format!("a stored vector has {} bytes, not a whole number of f32 of the model's width", b.len()),
-                        });
-                    }
-                    width = Some(b.len());
-                    Some(b.chunks_exact(4).map(|c| f32::from_le_bytes([c[0], c[1], c[2], c[3]])).collect())
+                            detail: format!(
+                                "a stored vector ({} bytes) fails its length or checksum check",
+                                b.len()
+                            ),
+                        })?;
+                    width = Some(v.len());
+                    Some(v)
                 }
             });
         }
@@ -186,7 +232,7 @@ impl VectorCache {
                 .prepare_cached("INSERT OR REPLACE INTO vectors VALUES (?1, ?2, ?3)")
                 .map_err(sql)?;
             for (k, v) in items {
-                stmt.execute(params![model, &k[..], to_blob(v)])
+                stmt.execute(params![model, &k[..], to_blob(&model, k, v)])
                     .map_err(sql)?;
             }
         }
@@ -261,6 +307,55 @@ mod tests {
             .unwrap();
         let e = c.get_many("m", &[k]).err().unwrap().to_string();
         assert!(e.contains("is corrupt"), "{e}");
+    }
+
+    #[test]
+    fn garbage_over_a_stored_vector_is_caught_by_its_checksum() {
+        let dir = tempfile::tempdir().unwrap();
+        let c = VectorCache::open(&dir.path().join("v.sqlite")).unwrap();
+        let k = text_key("", "x");
+        c.put_many("m", &[(k, vec![0.25, 0.5, -1.0])]).unwrap();
+        assert_eq!(
+            c.get_many("m", &[k]).unwrap(),
+            vec![Some(vec![0.25, 0.5, -1.0])]
+        );
+        // Same length, one byte of the vector changed: SQLite sees a valid row.
+        c.conn
+            .execute(
+                "UPDATE vectors SET vector = ?1",
+                params![{
+                    let mut b = to_blob(&fingerprint_bytes("m"), &k, &[0.25, 0.5, -1.0]);
+                    b[5] ^= 0x40;
+                    b
+                }],
+            )
+            .unwrap();
+        let e = c.get_many("m", &[k]).err().unwrap().to_string();
+        assert!(e.contains("is corrupt") && e.contains("checksum"), "{e}");
+    }
+
+    #[test]
+    fn schema_1_files_are_emptied_and_upgraded() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("v.sqlite");
+        {
+            let conn = Connection::open(&p).unwrap();
+            conn.execute_batch(
+                "CREATE TABLE meta (key TEXT PRIMARY KEY, value INTEGER NOT NULL);
+                 CREATE TABLE vectors (model BLOB NOT NULL, key BLOB NOT NULL, vector BLOB NOT NULL,
+                     PRIMARY KEY (model, key)) WITHOUT ROWID;
+                 INSERT INTO meta VALUES ('schema', 1);",
+            )
+            .unwrap();
+            conn.execute(
+                "INSERT INTO vectors VALUES (?1, ?2, ?3)",
+                params![fingerprint_bytes("m"), &text_key("", "x")[..], vec![0u8; 8]],
+            )
+            .unwrap();
+        }
+        let c = VectorCache::open(&p).unwrap();
+        assert_eq!(c.count("m").unwrap(), 0);
+        assert_eq!(c.get_many("m", &[text_key("", "x")]).unwrap(), vec![None]);
     }
 
     #[test]

@@ -14,6 +14,7 @@
 //! `tests/job_resume.rs`), so a job killed part way and run again reads what it stored and
 //! computes the rest to the same bits.
 use std::collections::HashMap;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
 
 use rayon::prelude::*;
@@ -47,6 +48,11 @@ pub enum JobError {
     /// Writing output failed.
     #[error(transparent)]
     Store(#[from] StoreError),
+    /// The job was asked to stop (the stop flag was set); finished batches are in the cache.
+    #[error(
+        "stopped before the end (finished batches are kept in the vector cache, if one is used)"
+    )]
+    Stopped,
     /// The encoder gave a different number of vectors than it was given texts.
     #[error("the encoder returned {got} vectors for {expected} inputs")]
     VectorCount {
@@ -139,6 +145,29 @@ pub fn embed_cached(
     batch_tokens: usize,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<(Vec<Vec<f32>>, CacheReport), JobError> {
+    let never = AtomicBool::new(false);
+    embed_cached_until(
+        embedder,
+        cache,
+        prefix,
+        inputs,
+        batch_tokens,
+        progress,
+        &never,
+    )
+}
+
+/// [`embed_cached`] that returns [`JobError::Stopped`] before the next batch once `stop` is set
+/// (the batches done are already in the cache).
+pub fn embed_cached_until(
+    embedder: &dyn Embedder,
+    cache: Option<&VectorCache>,
+    prefix: &str,
+    inputs: &[(&str, usize)],
+    batch_tokens: usize,
+    progress: &mut dyn FnMut(usize, usize),
+    stop: &AtomicBool,
+) -> Result<(Vec<Vec<f32>>, CacheReport), JobError> {
     let fingerprint = embedder.fingerprint();
     let mut first: HashMap<[u8; 32], usize> = HashMap::new();
     let mut distinct: Vec<usize> = Vec::new();
@@ -171,6 +200,9 @@ pub fn embed_cached(
     let mut tokens_done = tokens_total - misses.iter().map(|m| m.1).sum::<usize>();
     progress(tokens_done, tokens_total);
     for batch in batches_by_tokens(misses, batch_tokens) {
+        if stop.load(Ordering::Relaxed) {
+            return Err(JobError::Stopped);
+        }
         let texts: Vec<String> = batch
             .iter()
             .map(|&s| format!("{prefix}{}", inputs[distinct[s]].0))
@@ -317,12 +349,32 @@ impl EmbedJob<'_> {
     where
         I: IntoIterator<Item = Result<Document, CorpusError>>,
     {
+        self.run_until(docs, sink, progress, &AtomicBool::new(false))
+    }
+
+    /// [`EmbedJob::run`] that stops with [`JobError::Stopped`] at the next encoder batch or
+    /// document group once `stop` is set (an interrupt handler sets it). What the sink has is
+    /// then incomplete and must not be finished; the finished batches are in the cache, so the
+    /// same job run again resumes.
+    pub fn run_until<I>(
+        &self,
+        docs: I,
+        sink: &mut dyn ChunkSink,
+        progress: &mut dyn FnMut(&JobProgress),
+        stop: &AtomicBool,
+    ) -> Result<JobReport, JobError>
+    where
+        I: IntoIterator<Item = Result<Document, CorpusError>>,
+    {
         let mut report = JobReport::default();
         let mut block: Vec<CutDoc> = Vec::new();
         let mut block_tokens = 0usize;
         let mut docs = docs.into_iter().peekable();
         let mut group: Vec<Document> = Vec::with_capacity(CUT_GROUP);
         while docs.peek().is_some() {
+            if stop.load(Ordering::Relaxed) {
+                return Err(JobError::Stopped);
+            }
             group.clear();
             let mut pending = None;
             for d in docs.by_ref() {
@@ -351,7 +403,7 @@ impl EmbedJob<'_> {
                     new_tokens,
                 });
                 if block_tokens >= self.settings.block_tokens {
-                    self.flush(&mut block, sink, &mut report, progress)?;
+                    self.flush(&mut block, sink, &mut report, progress, stop)?;
                     block_tokens = 0;
                 }
             }
@@ -360,7 +412,7 @@ impl EmbedJob<'_> {
             }
         }
         if !block.is_empty() || report.blocks == 0 {
-            self.flush(&mut block, sink, &mut report, progress)?;
+            self.flush(&mut block, sink, &mut report, progress, stop)?;
         }
         Ok(report)
     }
@@ -372,6 +424,7 @@ impl EmbedJob<'_> {
         sink: &mut dyn ChunkSink,
         report: &mut JobReport,
         progress: &mut dyn FnMut(&JobProgress),
+        stop: &AtomicBool,
     ) -> Result<(), JobError> {
         let inputs: Vec<(&str, usize)> = block
             .iter()
@@ -384,7 +437,7 @@ impl EmbedJob<'_> {
             tokens: report.input_tokens,
             cache: report.cache,
         };
-        let (vectors, cache_report) = embed_cached(
+        let (vectors, cache_report) = embed_cached_until(
             self.embedder,
             self.cache,
             &self.plan.profile.cut.prefix,
@@ -396,6 +449,7 @@ impl EmbedJob<'_> {
                     ..base
                 })
             },
+            stop,
         )?;
         drop(inputs);
         report.cache.add(&cache_report);
