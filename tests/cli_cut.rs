@@ -282,3 +282,39 @@ fn stdin_and_jsonl() {
     assert_eq!(v["documents"][0]["id"], "stdin");
     assert_eq!(v["documents"][0]["content_tokens"], 7);
 }
+
+/// A JSONL file with a broken line in the middle: refused naming its line number, or, with
+/// --skip-broken-lines, that line left out and reported while every other line is cut.
+#[test]
+fn broken_jsonl_line_is_refused_or_skipped_never_silently() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let mut lines: Vec<String> = (0..40)
+        .map(|i| {
+            format!(r#"{{"id": "d{i}", "text": "Document {i} says one thing. Then another."}}"#)
+        })
+        .collect();
+    lines[17] = r#"{"id": "d17", "text": "cut off mid-"#.to_string();
+    lines[30] = r#"{"id": "d30", "body": "the text field is missing"}"#.to_string();
+    std::fs::write(d.join("docs.jsonl"), lines.join("\n") + "\n").unwrap();
+    let profile = common::repo().join("profiles/sentences-128.toml");
+    let p = profile.to_str().unwrap();
+    let e = fails(&kerf_in(d, &["cut", "-p", p, "docs.jsonl"]));
+    assert!(e.contains("docs.jsonl:18: not valid JSON"), "{e}");
+    assert!(e.contains("--skip-broken-lines"), "{e}");
+    let out = kerf_in(d, &["cut", "-p", p, "docs.jsonl", "--skip-broken-lines"]);
+    let stdout = ok(&out);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("docs.jsonl:18: skipped: not valid JSON"),
+        "{err}"
+    );
+    assert!(
+        err.contains("docs.jsonl:31: skipped: no field `text`"),
+        "{err}"
+    );
+    let ids: std::collections::BTreeSet<String> =
+        records(&stdout).into_iter().map(|r| r.doc).collect();
+    assert_eq!(ids.len(), 38, "{ids:?}");
+    assert!(!ids.contains("d17") && !ids.contains("d30"));
+}

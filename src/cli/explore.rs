@@ -57,6 +57,7 @@ fn read_documents(input: &InputArgs) -> Result<(Vec<Document>, Vec<Notice>)> {
             id_field: input.id_field.clone(),
             lossy: true,
             stdin_jsonl: input.stdin_jsonl,
+            skip_broken_lines: input.skip_broken_lines,
         },
     )?;
     let mut docs = Vec::new();

@@ -71,6 +71,10 @@ pub struct InputArgs {
     /// Replace invalid UTF-8 with U+FFFD instead of stopping.
     #[arg(long)]
     pub lossy: bool,
+    /// Leave out JSONL lines that are not usable documents (each reported on stderr with its
+    /// line number) instead of stopping at the first.
+    #[arg(long)]
+    pub skip_broken_lines: bool,
 }
 
 impl InputArgs {
@@ -82,6 +86,7 @@ impl InputArgs {
                 id_field: self.id_field.clone(),
                 lossy: self.lossy,
                 stdin_jsonl: self.stdin_jsonl,
+                skip_broken_lines: self.skip_broken_lines,
             },
         )?)
     }
@@ -214,8 +219,9 @@ fn hint(e: &(dyn std::error::Error + 'static)) -> &'static str {
         match e {
             CorpusError::Utf8 { .. } => " (pass --lossy to replace bad bytes with U+FFFD)",
             CorpusError::Jsonl { reason, .. } if reason.starts_with("no field") => {
-                " (choose another with --text-field)"
+                " (choose another with --text-field, or pass --skip-broken-lines)"
             }
+            CorpusError::Jsonl { .. } => " (pass --skip-broken-lines to leave such lines out)",
             _ => "",
         }
     }

@@ -52,6 +52,37 @@ pub enum CorpusError {
     },
 }
 
+/// One JSONL line as a document, or what is wrong with it.
+fn parse_jsonl_line(
+    line: &str,
+    path: &Path,
+    line_no: usize,
+    opts: &InputOptions,
+) -> Result<Document, String> {
+    let v: serde_json::Value =
+        serde_json::from_str(line).map_err(|e| format!("not valid JSON: {e}"))?;
+    let obj = v.as_object().ok_or("expected a JSON object")?;
+    let text = match obj.get(&opts.text_field) {
+        Some(serde_json::Value::String(s)) => s.clone(),
+        Some(_) => return Err(format!("field `{}` is not a string", opts.text_field)),
+        None => return Err(format!("no field `{}`", opts.text_field)),
+    };
+    let file = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let id = match obj.get(&opts.id_field) {
+        Some(serde_json::Value::String(s)) => s.clone(),
+        Some(serde_json::Value::Number(n)) => n.to_string(),
+        _ => format!("{file}:{line_no}"),
+    };
+    Ok(Document {
+        id,
+        origin: format!("{}:{}", path.display(), line_no),
+        text,
+    })
+}
+
 /// How inputs are read.
 #[derive(Debug, Clone)]
 pub struct InputOptions {
@@ -63,6 +94,9 @@ pub struct InputOptions {
     pub lossy: bool,
     /// Treat standard input as JSONL rather than one document.
     pub stdin_jsonl: bool,
+    /// A JSONL line that is not a usable document (bad JSON, bad UTF-8, no text field) is left
+    /// out with a [`Notice`] naming its line, instead of stopping the stream.
+    pub skip_broken_lines: bool,
 }
 
 impl Default for InputOptions {
@@ -72,6 +106,7 @@ impl Default for InputOptions {
             id_field: "id".into(),
             lossy: false,
             stdin_jsonl: false,
+            skip_broken_lines: false,
         }
     }
 }
@@ -248,52 +283,28 @@ impl DocStream {
                     }))
                 }
             }
-            let line = match decode(raw, path, self.opts.lossy) {
-                Ok(l) => l,
-                Err(CorpusError::Utf8 { path, offset }) => {
-                    return Some(Err(CorpusError::Jsonl {
-                        path,
-                        line: *line_no,
-                        reason: format!("invalid UTF-8 at byte {offset} of the line"),
-                    }))
+            let parsed = match decode(raw, path, self.opts.lossy) {
+                Ok(line) if line.trim().is_empty() => continue,
+                Ok(line) => parse_jsonl_line(&line, path, *line_no, &self.opts),
+                Err(CorpusError::Utf8 { offset, .. }) => {
+                    Err(format!("invalid UTF-8 at byte {offset} of the line"))
                 }
                 Err(e) => return Some(Err(e)),
             };
-            if line.trim().is_empty() {
-                continue;
-            }
-            let jerr = |reason: String| {
-                Some(Err(CorpusError::Jsonl {
-                    path: path.clone(),
-                    line: *line_no,
-                    reason,
-                }))
-            };
-            let v: serde_json::Value = match serde_json::from_str(&line) {
-                Ok(v) => v,
-                Err(e) => return jerr(format!("not valid JSON: {e}")),
-            };
-            let Some(obj) = v.as_object() else {
-                return jerr("expected a JSON object".into());
-            };
-            let text = match obj.get(&self.opts.text_field) {
-                Some(serde_json::Value::String(s)) => s.clone(),
-                Some(_) => {
-                    return jerr(format!("field `{}` is not a string", self.opts.text_field))
+            match parsed {
+                Ok(doc) => return Some(Ok(doc)),
+                Err(reason) if self.opts.skip_broken_lines => self.notices.push(Notice {
+                    origin: format!("{}:{}", path.display(), line_no),
+                    message: format!("skipped: {reason}"),
+                }),
+                Err(reason) => {
+                    return Some(Err(CorpusError::Jsonl {
+                        path: path.clone(),
+                        line: *line_no,
+                        reason,
+                    }))
                 }
-                None => return jerr(format!("no field `{}`", self.opts.text_field)),
-            };
-            let file = path
-                .file_name()
-                .map(|n| n.to_string_lossy().into_owned())
-                .unwrap_or_default();
-            let id = match obj.get(&self.opts.id_field) {
-                Some(serde_json::Value::String(s)) => s.clone(),
-                Some(serde_json::Value::Number(n)) => n.to_string(),
-                _ => format!("{file}:{line_no}"),
-            };
-            let origin = format!("{}:{}", path.display(), line_no);
-            return Some(Ok(Document { id, origin, text }));
+            }
         }
     }
 
