@@ -226,3 +226,53 @@ fn token_overlap_is_exact_on_short_words() {
         assert_eq!(c.overlap_tokens, 16 / per_word * per_word, "{c:?}");
     }
 }
+
+/// Named hostile texts (common practice in text-handling tests; the code points are from the
+/// Unicode standard): a byte-order mark, lone CR line ends, NUL bytes, stacked combining marks,
+/// zero-width joiner sequences, right-to-left text with bidi controls, line and paragraph
+/// separators, and a 200,000-byte run with no whitespace. Every rule at a small and a large
+/// window: chunks match their byte ranges, fit, and cover the text in order.
+#[test]
+fn hostile_unicode_texts_still_fit_and_cover() {
+    let zalgo: String = "Z\u{0351}\u{0346}\u{0329}a\u{0300}\u{0301}\u{0302}\u{0303}\u{0304}l\u{0308}\u{0330}g\u{035B}o\u{0489} "
+        .repeat(60);
+    let cases: Vec<(&str, String)> = vec![
+        ("bom", "\u{feff}First line after a byte-order mark. Second sentence.\n\nNext paragraph.".repeat(20)),
+        ("lone cr", "Old Mac line ends.\rAnother line.\r\rA paragraph after two CRs.\r".repeat(40)),
+        ("nul bytes", "Text with a NUL\u{0}inside. And\u{0}\u{0}two more. End.\n".repeat(40)),
+        ("combining marks", zalgo),
+        ("zwj sequences", "Crew 👩\u{200d}🔧👨\u{200d}👩\u{200d}👧\u{200d}👦 on duty 🏳\u{fe0f}\u{200d}🌈. ".repeat(80)),
+        ("rtl and bidi", "\u{202e}reversed\u{202c} مرحبا بالعالم. \u{200f}שלום עולם.\u{200e} Mixed text, then English. ".repeat(50)),
+        ("separators", "Line one\u{2028}line two\u{2029}next paragraph\u{85}after NEL. ".repeat(60)),
+        ("no whitespace", "x".repeat(200_000)),
+        ("invisible", "\u{200b}\u{2060}\u{feff}\u{00ad}".repeat(500)),
+    ];
+    for (name, text) in &cases {
+        for boundary in Boundary::ALL {
+            for window in [16usize, 256] {
+                let plan = resolved(
+                    boundary,
+                    window,
+                    if boundary == Boundary::Head { 0 } else { 4 },
+                    0,
+                    "",
+                );
+                let an = survey::analyze(text, counter()).unwrap();
+                let recount = |t: &str| counter().count_content(t).unwrap();
+                let chunks = split::cut(text, &an.tokens, &an.segments, &plan.cut, &recount);
+                for c in &chunks {
+                    assert!(
+                        text.is_char_boundary(c.byte_range.start)
+                            && text.is_char_boundary(c.byte_range.end)
+                            && c.byte_range.end <= text.len(),
+                        "{name} {boundary:?} {window}: byte range {:?}",
+                        c.byte_range
+                    );
+                }
+                if let Err(e) = check(text, &chunks, &plan) {
+                    panic!("{name}, {boundary:?}, window {window}: {e}");
+                }
+            }
+        }
+    }
+}
