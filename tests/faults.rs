@@ -213,7 +213,8 @@ fn damaged_caches_are_refused_and_rebuilt() {
     ok(&run(d, &embed_args(&demo(), "whole", "good.sqlite")));
     let good = std::fs::read(d.join("good.sqlite")).unwrap();
     assert!(good.len() > 64 * 1024, "cache of {} bytes", good.len());
-    let damaged: Vec<(&str, Box<dyn Fn(&Path)>)> = vec![
+    type Damage<'a> = Box<dyn Fn(&Path) + 'a>;
+    let damaged: Vec<(&str, Damage)> = vec![
         (
             "truncated",
             Box::new(|p: &Path| std::fs::write(p, &good[..good.len() / 3]).unwrap()),

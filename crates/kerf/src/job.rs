@@ -286,13 +286,16 @@ pub struct JobReport {
     pub cache: CacheReport,
 }
 
+/// A document's chunk records, with each chunk's tokens not shared with the chunk before it.
+pub type CutRecords = (Vec<ChunkRecord>, Vec<usize>);
+
 /// Cut one document into its chunk records under `plan`, with each chunk's tokens not shared
 /// with the chunk before it.
 pub fn cut_document(
     plan: &ResolvedPlan,
     counter: &TokenCounter,
     doc: &Document,
-) -> Result<(Vec<ChunkRecord>, Vec<usize>), TokensError> {
+) -> Result<CutRecords, TokensError> {
     let recount = |t: &str| counter.count_content(t).unwrap_or(usize::MAX);
     let an = survey::analyze(&doc.text, counter)?;
     let chunks = split::cut(&doc.text, &an.tokens, &an.segments, &plan.cut, &recount);
@@ -334,7 +337,7 @@ const CUT_GROUP: usize = 64;
 impl EmbedJob<'_> {
     /// Cut one document into its chunk records (with each chunk's tokens not shared with the
     /// chunk before it, the weights of a token-weighted document mean).
-    pub fn cut(&self, doc: &Document) -> Result<(Vec<ChunkRecord>, Vec<usize>), TokensError> {
+    pub fn cut(&self, doc: &Document) -> Result<CutRecords, TokensError> {
         cut_document(self.plan, self.counter, doc)
     }
 
@@ -390,7 +393,7 @@ impl EmbedJob<'_> {
                 }
             }
             let (plan, counter) = (self.plan, self.counter);
-            let cut: Vec<Result<(Vec<ChunkRecord>, Vec<usize>), TokensError>> = group
+            let cut: Vec<Result<CutRecords, TokensError>> = group
                 .par_iter()
                 .map(|d| cut_document(plan, counter, d))
                 .collect();

@@ -310,6 +310,9 @@ pub fn embed_refs(
 /// Tokens per encoder batch when compare, sweep and explore embed (as `kerf embed`'s default).
 pub const REF_BATCH_TOKENS: usize = 8192;
 
+/// Vectors of every chunk of every document: `[doc][chunk]`.
+pub type ChunkVectors = Vec<Vec<Vec<f32>>>;
+
 /// Chunk vectors of a corpus under a plan, through the cache; also how many were embedded now.
 pub fn embed_chunks(
     corpus: &Corpus,
@@ -318,7 +321,7 @@ pub fn embed_chunks(
     embedder: &dyn crate::embed::Embedder,
     cache: Option<&crate::cache::VectorCache>,
     progress: &mut dyn FnMut(usize, usize),
-) -> Result<(Vec<Vec<Vec<f32>>>, usize), JobError> {
+) -> Result<(ChunkVectors, usize), JobError> {
     let inputs: Vec<(&str, usize)> = corpus
         .docs
         .iter()

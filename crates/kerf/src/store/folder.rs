@@ -31,7 +31,7 @@ enum Vectors {
         ids: BufWriter<File>,
         ids_written: usize,
     },
-    Parquet(ParquetPair),
+    Parquet(Box<ParquetPair>),
 }
 
 /// Counts of what a folder holds.
@@ -139,11 +139,11 @@ impl FolderSink {
                 )
             }
             Format::Parquet => (
-                Vectors::Parquet(ParquetPair::create(
+                Vectors::Parquet(Box::new(ParquetPair::create(
                     &tmp.join("chunks.parquet"),
                     &tmp.join("documents.parquet"),
                     dim,
-                )?),
+                )?)),
                 vec!["chunks.jsonl", "chunks.parquet", "documents.parquet"],
             ),
         };
