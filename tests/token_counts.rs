@@ -55,3 +55,34 @@ fn counts_match_the_pure_python_wordpiece() {
     );
     assert!(mismatches.is_empty(), "{}", mismatches.join("\n"));
 }
+
+/// Long documents are tokenized in pieces cut before whitespace (to bound memory); the pieces
+/// must give exactly the tokens, offsets and word starts of tokenizing the whole text. Checked
+/// on the Debian FAQ (debian-faq 11.1) and every demo text, with pieces far smaller than the
+/// real limit so there are hundreds of cuts, including the tricky strings of the fixture.
+#[test]
+fn pieces_tokenize_exactly_like_the_whole() {
+    let (_, counter) = model::inspect(&common::model_dir()).unwrap();
+    let mut texts =
+        vec![std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap()];
+    for e in std::fs::read_dir(common::repo().join("demo-texts")).unwrap() {
+        let p = e.unwrap().path();
+        if matches!(p.extension().and_then(|x| x.to_str()), Some("md" | "txt")) {
+            texts.push(std::fs::read_to_string(p).unwrap());
+        }
+    }
+    texts.push(
+        "naïve café\r\n\u{feff}東京駅の北口 مرحبا 👩\u{200d}🔧 x\u{0301}y   \t\n\nend".repeat(300),
+    );
+    for (i, text) in texts.iter().enumerate() {
+        let whole = counter.tokenize_in_pieces(text, usize::MAX).unwrap();
+        for piece in [97, 1000, 4096] {
+            let parts = counter.tokenize_in_pieces(text, piece).unwrap();
+            assert_eq!(parts.offsets, whole.offsets, "text {i}, pieces of {piece}");
+            assert_eq!(
+                parts.word_start, whole.word_start,
+                "text {i}, pieces of {piece}"
+            );
+        }
+    }
+}

@@ -29,6 +29,47 @@ pub enum TokensError {
     },
 }
 
+/// Texts longer than this are tokenized in pieces (see [`TokenCounter::tokenize`]).
+pub const TOKENIZE_PIECE_BYTES: usize = 256 * 1024;
+
+/// Where the piece that starts at `start` ends: the text's end if within `piece_bytes`; else
+/// just before the last line break in the second half of the piece, else before the last
+/// whitespace character in it, else before the first whitespace character after it (a run with
+/// no whitespace is never cut), else the text's end.
+fn piece_end(text: &str, start: usize, piece_bytes: usize) -> usize {
+    if text.len() - start <= piece_bytes {
+        return text.len();
+    }
+    let mut limit = start + piece_bytes;
+    while !text.is_char_boundary(limit) {
+        limit -= 1;
+    }
+    let window = &text[start..limit];
+    let mut half = window.len() / 2;
+    while !window.is_char_boundary(half) {
+        half += 1;
+    }
+    if let Some(i) = window[half..].rfind('\n').map(|i| half + i) {
+        if i > 0 {
+            return start + i;
+        }
+    }
+    if let Some((i, _)) = window
+        .char_indices()
+        .rev()
+        .find(|&(i, c)| i > 0 && c.is_whitespace())
+    {
+        return start + i;
+    }
+    match text[limit..]
+        .char_indices()
+        .find(|&(_, c)| c.is_whitespace())
+    {
+        Some((i, _)) => limit + i,
+        None => text.len(),
+    }
+}
+
 /// What the tokenizer file itself would have done to every input, before kerf turned it off.
 #[derive(Debug, Clone, Default, PartialEq, Eq, serde::Serialize)]
 pub struct TokenizerDefaults {
@@ -119,28 +160,58 @@ impl TokenCounter {
     }
 
     /// Content tokens of a text with byte offsets and word starts.
+    ///
+    /// A text longer than [`TOKENIZE_PIECE_BYTES`] is tokenized in pieces cut just before a
+    /// whitespace character (a line break where there is one), so memory stays bounded for a
+    /// document of any length: the tokenizer's own working state costs about a hundred bytes
+    /// per byte of text. Pre-tokenizers split at whitespace (BERT's WordPiece, byte-level BPE
+    /// and Metaspace keep a space with the word after it), so the pieces give the same tokens
+    /// as the whole; `tests/token_counts.rs` checks it on real text. A run of more than a
+    /// piece with no whitespace is tokenized whole.
     pub fn tokenize(&self, text: &str) -> Result<Tokenized, TokensError> {
+        self.tokenize_in_pieces(text, TOKENIZE_PIECE_BYTES)
+    }
+
+    /// [`TokenCounter::tokenize`] with pieces of at most about `piece_bytes` (for tests).
+    pub fn tokenize_in_pieces(
+        &self,
+        text: &str,
+        piece_bytes: usize,
+    ) -> Result<Tokenized, TokensError> {
+        let mut out = Tokenized::default();
+        let mut start = 0;
+        while start < text.len() {
+            let end = piece_end(text, start, piece_bytes.max(1));
+            self.tokenize_piece(&text[start..end], start, &mut out)?;
+            start = end;
+        }
+        Ok(out)
+    }
+
+    fn tokenize_piece(
+        &self,
+        piece: &str,
+        base: usize,
+        out: &mut Tokenized,
+    ) -> Result<(), TokensError> {
         let enc = self
             .tokenizer
-            .encode(text, false)
+            .encode(piece, false)
             .map_err(|e| TokensError::Encode {
-                what: format!("a text of {} bytes", text.len()),
+                what: format!("a text of {} bytes", piece.len()),
                 reason: e.to_string(),
             })?;
         let words = enc.get_word_ids();
-        let mut offsets = Vec::with_capacity(enc.len());
-        let mut word_start = Vec::with_capacity(enc.len());
+        out.offsets.reserve(enc.len());
+        out.word_start.reserve(enc.len());
         let mut prev_word: Option<u32> = None;
         for (i, &(a, b)) in enc.get_offsets().iter().enumerate() {
-            offsets.push(a..b);
+            out.offsets.push(base + a..base + b);
             let w = words.get(i).copied().flatten();
-            word_start.push(i == 0 || w.is_none() || w != prev_word);
+            out.word_start.push(i == 0 || w.is_none() || w != prev_word);
             prev_word = w;
         }
-        Ok(Tokenized {
-            offsets,
-            word_start,
-        })
+        Ok(())
     }
 
     /// Content tokens of a text (no specials).
