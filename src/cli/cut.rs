@@ -5,10 +5,6 @@ use std::path::PathBuf;
 use anyhow::{Context, Result};
 use clap::Args;
 
-use kerf::records::ChunkRecord;
-use kerf::split;
-use kerf::survey;
-
 use super::{load_plan, open_output, report_notices, InputArgs, PlanArgs};
 
 #[derive(Args)]
@@ -33,20 +29,18 @@ pub fn run(a: CutArgs) -> Result<()> {
     let mut stream = a.input.open()?;
     let mut out = open_output(a.out.as_deref(), a.force)?;
     let (counter, plan) = (&loaded.counter, &loaded.plan);
-    let recount = |t: &str| counter.count_content(t).unwrap_or(usize::MAX);
     let mut chunks_written = 0usize;
     kerf::process_in_order(
         stream.by_ref().map(|r| r.map_err(anyhow::Error::from)),
         64,
         |doc| {
-            let an = survey::analyze(&doc.text, counter)?;
-            let chunks = split::cut(&doc.text, &an.tokens, &an.segments, &plan.cut, &recount);
+            let (records, _) = kerf::job::cut_document(plan, counter, doc)?;
             let mut buf = String::new();
-            for c in &chunks {
-                buf.push_str(&serde_json::to_string(&ChunkRecord::new(doc, c, plan))?);
+            for r in &records {
+                buf.push_str(&serde_json::to_string(r)?);
                 buf.push('\n');
             }
-            Ok((buf, chunks.len()))
+            Ok((buf, records.len()))
         },
         |_, (buf, n)| {
             out.write_all(buf.as_bytes()).context("writing chunks")?;

@@ -303,10 +303,7 @@ pub fn cut_document(
         .iter()
         .map(|c| c.content_tokens.saturating_sub(c.overlap_tokens))
         .collect();
-    let records = chunks
-        .iter()
-        .map(|c| ChunkRecord::new(doc, c, plan))
-        .collect();
+    let records = ChunkRecord::of_document(doc, &chunks, plan);
     Ok((records, new_tokens))
 }
 

@@ -3,7 +3,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::corpus::Document;
 use crate::plan::ResolvedPlan;
-use crate::segment::line_of;
+use crate::segment::LineIndex;
 use crate::split::Chunk;
 
 /// One chunk as written to JSONL.
@@ -28,16 +28,25 @@ pub struct ChunkRecord {
 }
 
 impl ChunkRecord {
-    /// Build the record of a chunk.
-    pub fn new(doc: &Document, chunk: &Chunk, plan: &ResolvedPlan) -> Self {
+    /// The records of a document's chunks (its lines indexed once).
+    pub fn of_document(doc: &Document, chunks: &[Chunk], plan: &ResolvedPlan) -> Vec<Self> {
+        let lines = LineIndex::new(&doc.text);
+        chunks
+            .iter()
+            .map(|c| Self::new(doc, c, plan, &lines))
+            .collect()
+    }
+
+    /// Build the record of a chunk; `lines` indexes the document's text.
+    pub fn new(doc: &Document, chunk: &Chunk, plan: &ResolvedPlan, lines: &LineIndex) -> Self {
         let b = &chunk.byte_range;
         Self {
             doc: doc.id.clone(),
             chunk: chunk.index,
             bytes: [b.start, b.end],
             lines: [
-                line_of(&doc.text, b.start),
-                line_of(&doc.text, b.end.saturating_sub(1).max(b.start)),
+                lines.line_of(b.start),
+                lines.line_of(b.end.saturating_sub(1).max(b.start)),
             ],
             tokens: plan.input_tokens(chunk.content_tokens),
             overlap: chunk.overlap_tokens,

@@ -97,13 +97,14 @@ pub fn doc_stats(doc: &Document, a: &Analysis, plan: &ResolvedPlan) -> DocStats 
     let sentence_tokens = crate::split::token_ranges_of(&a.tokens, &a.segments.sentences);
     let mut longest = (0usize, 0usize);
     let mut oversize = Vec::new();
+    let lines = segment::LineIndex::new(text);
     for (s, t) in a.segments.sentences.iter().zip(&sentence_tokens) {
         if t.len() > longest.0 {
             longest = (t.len(), s.start);
         }
         if t.len() > budget {
             oversize.push(Oversize {
-                line: segment::line_of(text, s.start),
+                line: lines.line_of(s.start),
                 tokens: t.len(),
                 preview: preview(&text[s.clone()], 12),
             });

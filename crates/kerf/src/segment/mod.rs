@@ -106,6 +106,32 @@ pub fn segment(text: &str) -> Segments {
     }
 }
 
+/// Line numbers of byte offsets in one text, from the positions of its line breaks found once:
+/// each lookup is a binary search, so numbering every chunk of a long document stays linear.
+#[derive(Debug, Clone, Default)]
+pub struct LineIndex {
+    breaks: Vec<usize>,
+}
+
+impl LineIndex {
+    /// Index the line breaks ('\n') of `text`.
+    pub fn new(text: &str) -> Self {
+        Self {
+            breaks: text
+                .bytes()
+                .enumerate()
+                .filter(|&(_, b)| b == b'\n')
+                .map(|(i, _)| i)
+                .collect(),
+        }
+    }
+
+    /// 1-based line number of a byte offset, as [`line_of`] counts it.
+    pub fn line_of(&self, byte: usize) -> usize {
+        1 + self.breaks.partition_point(|&i| i < byte)
+    }
+}
+
 /// 1-based line number of a byte offset (counting '\n'); helper for reports. An offset past the
 /// end counts the whole text.
 pub fn line_of(text: &str, byte: usize) -> usize {
@@ -597,6 +623,10 @@ mod tests {
         assert_eq!(line_of(t, 2), 2);
         assert_eq!(line_of(t, 5), 3);
         assert_eq!(line_of(t, 100), 3);
+        let idx = LineIndex::new(t);
+        for b in 0..=t.len() + 3 {
+            assert_eq!(idx.line_of(b), line_of(t, b), "byte {b}");
+        }
     }
 
     #[test]
