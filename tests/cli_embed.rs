@@ -2,43 +2,16 @@
 //! job killed with SIGKILL half way that resumes to byte-identical output.
 mod common;
 
-use std::path::Path;
 use std::process::Command;
 
-use common::{fails, kerf_in, ok};
-
-/// A corpus of real long text: the Debian FAQ (debian-faq 11.1) cut into one file per chapter.
-fn faq_corpus(dir: &Path) {
-    let faq = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
-    let mut n = 0;
-    for (i, part) in faq.split("\nChapter\u{a0}").enumerate().skip(1) {
-        std::fs::write(dir.join(format!("chapter-{i:02}.txt")), part).unwrap();
-        n += 1;
-    }
-    assert_eq!(n, 16);
-}
-
-fn files_of(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap())
-        .map(|e| {
-            (
-                e.file_name().to_string_lossy().into_owned(),
-                std::fs::read(e.path()).unwrap(),
-            )
-        })
-        .collect();
-    v.sort();
-    v
-}
+use common::{fails, faq_chapters, files_of, kerf_in, ok};
 
 #[test]
 fn killed_job_resumes_to_identical_output() {
     let tmp = tempfile::tempdir().unwrap();
     let d = tmp.path();
     std::fs::create_dir(d.join("corpus")).unwrap();
-    faq_corpus(&d.join("corpus"));
+    assert_eq!(faq_chapters(&d.join("corpus"), usize::MAX), 16);
     let profile = common::repo().join("profiles/sentences-128.toml");
     let p = profile.to_str().unwrap();
     let args = |out: &str, cache: &str| -> Vec<String> {
@@ -263,7 +236,7 @@ fn int8_profile_embeds_its_own_vectors_close_to_f32() {
     let tmp = tempfile::tempdir().unwrap();
     let d = tmp.path();
     std::fs::create_dir(d.join("corpus")).unwrap();
-    faq_corpus(&d.join("corpus"));
+    assert_eq!(faq_chapters(&d.join("corpus"), usize::MAX), 16);
     // Three chapters are enough chunks (about 60) and keep the two runs short.
     for i in 4..=16 {
         std::fs::remove_file(d.join(format!("corpus/chapter-{i:02}.txt"))).unwrap();

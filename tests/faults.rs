@@ -10,22 +10,7 @@ mod common;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 
-use common::{fails, kerf_in, ok};
-
-fn files_of(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap())
-        .map(|e| {
-            (
-                e.file_name().to_string_lossy().into_owned(),
-                std::fs::read(e.path()).unwrap(),
-            )
-        })
-        .collect();
-    v.sort();
-    v
-}
+use common::{fails, faq_chapters, files_of, kerf_in, ok};
 
 fn no_partials(dir: &Path) {
     let left: Vec<String> = std::fs::read_dir(dir)
@@ -88,10 +73,7 @@ fn interrupts_stop_cleanly_and_the_rerun_resumes() {
     let tmp = tempfile::tempdir().unwrap();
     let d = tmp.path();
     std::fs::create_dir(d.join("corpus")).unwrap();
-    let faq = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
-    for (i, part) in faq.split("\nChapter\u{a0}").enumerate().skip(1).take(8) {
-        std::fs::write(d.join(format!("corpus/chapter-{i:02}.txt")), part).unwrap();
-    }
+    assert_eq!(faq_chapters(&d.join("corpus"), 8), 8);
     ok(&run(d, &embed_args("corpus", "whole", "cache-a.sqlite")));
     for (signal, cache) in [("INT", "cache-int.sqlite"), ("TERM", "cache-term.sqlite")] {
         let child = Command::new(env!("CARGO_BIN_EXE_kerf"))

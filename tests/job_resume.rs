@@ -7,34 +7,11 @@
 //! all-MiniLM-L6-v2 folder (scripts/fetch-model).
 mod common;
 
-use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
 
-use common::{kerf_in, ok};
+use common::{faq_chapters, files_of, kerf_in, ok};
 use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, Precision};
-
-fn faq_chapters(dir: &Path, n: usize) {
-    let faq = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
-    for (i, part) in faq.split("\nChapter\u{a0}").enumerate().skip(1).take(n) {
-        std::fs::write(dir.join(format!("chapter-{i:02}.txt")), part).unwrap();
-    }
-}
-
-fn files_of(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap())
-        .map(|e| {
-            (
-                e.file_name().to_string_lossy().into_owned(),
-                std::fs::read(e.path()).unwrap(),
-            )
-        })
-        .collect();
-    v.sort();
-    v
-}
 
 /// A small deterministic generator (SplitMix64), so a failing run can be repeated from its seed.
 fn splitmix(state: &mut u64) -> u64 {
@@ -50,7 +27,7 @@ fn multi_block_job_killed_at_random_moments_resumes_to_identical_output() {
     let tmp = tempfile::tempdir().unwrap();
     let d = tmp.path();
     std::fs::create_dir(d.join("corpus")).unwrap();
-    faq_chapters(&d.join("corpus"), 8);
+    assert_eq!(faq_chapters(&d.join("corpus"), 8), 8);
     let profile = common::repo().join("profiles/sentences-128.toml");
     let args = |out: &str, cache: &str| -> Vec<String> {
         let p = profile.to_str().unwrap();

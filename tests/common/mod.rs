@@ -68,3 +68,32 @@ pub fn fails(out: &Output) -> String {
     assert!(!err.contains("panicked"), "kerf panicked:\n{err}");
     err
 }
+
+/// Every file of a folder with its bytes, sorted by name (for byte-for-byte comparisons of
+/// output folders).
+pub fn files_of(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap())
+        .map(|e| {
+            (
+                e.file_name().to_string_lossy().into_owned(),
+                std::fs::read(e.path()).unwrap(),
+            )
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+/// The Debian FAQ (debian-faq 11.1, from scripts/fetch-testdata) written into `dir` as one file
+/// per chapter, the first `n` chapters (it has 16).
+pub fn faq_chapters(dir: &Path, n: usize) -> usize {
+    let faq = std::fs::read_to_string(testdata("debian-faq/debian-faq.en.txt")).unwrap();
+    let mut written = 0;
+    for (i, part) in faq.split("\nChapter\u{a0}").enumerate().skip(1).take(n) {
+        std::fs::write(dir.join(format!("chapter-{i:02}.txt")), part).unwrap();
+        written += 1;
+    }
+    written
+}
