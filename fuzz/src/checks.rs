@@ -306,7 +306,7 @@ pub fn profile(data: &[u8]) {
                     .next()
                     .and_then(|l| l.parse().ok())
                     .expect("a line number");
-                assert!(line >= 1 && line <= text.split('\n').count(), "{m}");
+                assert!((1..=text.split('\n').count()).contains(&line), "{m}");
             }
         }
     }
