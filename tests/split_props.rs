@@ -195,7 +195,9 @@ proptest! {
     ) {
         let prefix = if with_prefix { "passage: " } else { "" };
         let fixed = 2 + if with_prefix { 3 } else { 0 };
-        let window = window.max(fixed + 2);
+        // Budgets under the tokenizer's piece floor are refused by the plan (tested in
+        // tests/token_counts.rs), so the smallest window drawn is the smallest accepted.
+        let window = window.max(fixed + counter().piece_floor());
         let budget = window - fixed;
         let overlap = ((budget as f64) * overlap_frac) as usize;
         let min_chunk = ((budget as f64) * min_frac) as usize;

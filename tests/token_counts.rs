@@ -86,3 +86,91 @@ fn pieces_tokenize_exactly_like_the_whole() {
         }
     }
 }
+
+/// BERT's WordPiece as published (greedy longest-match-first over the vocabulary, `##` before
+/// every piece after the first, the whole word `[UNK]` when a piece has no match; Devlin et al.
+/// 2019 and google-research/bert `tokenization.py`, written here from memory), for a word that
+/// is already lower-case and has no punctuation.
+fn wordpiece_count(word: &str, vocab: &std::collections::HashSet<String>) -> usize {
+    let chars: Vec<char> = word.chars().collect();
+    let mut start = 0;
+    let mut count = 0;
+    while start < chars.len() {
+        let mut end = chars.len();
+        let mut found = false;
+        while end > start {
+            let piece: String = chars[start..end].iter().collect();
+            let piece = if start > 0 {
+                format!("##{piece}")
+            } else {
+                piece
+            };
+            if vocab.contains(&piece) {
+                found = true;
+                break;
+            }
+            end -= 1;
+        }
+        if !found {
+            return 1; // the whole word becomes [UNK]
+        }
+        count += 1;
+        start = end;
+    }
+    count
+}
+
+/// The piece floor (the most tokens one vocabulary token re-tokenizes to when cut out of a word)
+/// against an independent WordPiece over the model's own vocab.txt: every continuation entry made
+/// of lower-case ASCII letters and digits counts the same both ways, and the floor is the largest
+/// count. The plan refuses a budget under the floor and accepts one at it.
+#[test]
+fn piece_floor_matches_an_independent_wordpiece() {
+    let dir = common::model_dir();
+    let (info, counter) = model::inspect(&dir).unwrap();
+    let vocab_txt = std::fs::read_to_string(dir.join("vocab.txt")).unwrap();
+    let vocab: std::collections::HashSet<String> = vocab_txt.lines().map(str::to_string).collect();
+    let mut checked = 0;
+    let mut independent_max = 0;
+    for entry in vocab_txt.lines() {
+        let Some(rest) = entry.strip_prefix("##") else {
+            continue;
+        };
+        if rest.is_empty()
+            || !rest
+                .chars()
+                .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit())
+        {
+            continue;
+        }
+        let ours = counter.count_content(rest).unwrap();
+        let theirs = wordpiece_count(rest, &vocab);
+        assert_eq!(ours, theirs, "{entry:?} alone");
+        independent_max = independent_max.max(theirs);
+        checked += 1;
+    }
+    assert!(
+        checked > 4000,
+        "only {checked} continuation entries checked"
+    );
+    let floor = counter.piece_floor();
+    assert!(
+        floor >= independent_max,
+        "floor {floor} < {independent_max}"
+    );
+    // The example the split fuzz target found: `##ick` (of "pennick") alone is two tokens.
+    assert!(vocab.contains("##ick"));
+    assert_eq!(wordpiece_count("ick", &vocab), 2);
+    eprintln!("piece floor {floor}; {checked} entries checked, independent max {independent_max}");
+
+    let mut p = kerf::profile::Profile::default();
+    p.cut.boundary = kerf::profile::Boundary::Token;
+    p.cut.overlap = 0;
+    p.cut.min_chunk = 0;
+    p.cut.window = counter.specials_per_input() + floor - 1;
+    let e = kerf::plan::resolve(&p, &info, &counter, "t.toml").unwrap_err();
+    assert!(e.to_string().contains(&format!("at least {floor}")), "{e}");
+    p.cut.window += 1;
+    let plan = kerf::plan::resolve(&p, &info, &counter, "t.toml").unwrap();
+    assert_eq!(plan.budget(), floor);
+}

@@ -265,6 +265,23 @@ impl DocStream {
         docs.into_iter().map(Ok)
     }
 
+    /// A stream over JSONL read from any reader (a buffer in tests and fuzzing); `label` stands
+    /// for the file in ids and messages, as a path would.
+    pub fn from_jsonl_reader(
+        reader: impl BufRead + Send + 'static,
+        label: &Path,
+        opts: InputOptions,
+    ) -> Self {
+        Self {
+            sources: Vec::new().into_iter(),
+            current_jsonl: Some((label.to_path_buf(), Box::new(reader), 0)),
+            opts,
+            seen: HashSet::new(),
+            notices: Vec::new(),
+            failed: false,
+        }
+    }
+
     fn next_jsonl(&mut self) -> Option<Result<Document, CorpusError>> {
         let (path, reader, line_no) = self.current_jsonl.as_mut()?;
         loop {

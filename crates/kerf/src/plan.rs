@@ -95,6 +95,14 @@ pub fn resolve(
         ));
     }
     let budget = c.window - fixed;
+    let floor = counter.piece_floor();
+    if c.boundary != Boundary::Head && budget < floor {
+        return err(format!(
+            "[cut] window {} leaves a content budget of {budget} tokens; this tokenizer needs at least {floor} (a piece cut from inside a long word can re-tokenize to {floor} tokens on its own), so use a window of at least {}",
+            c.window,
+            fixed + floor
+        ));
+    }
     if c.boundary != Boundary::Head && c.overlap >= budget {
         return err(format!(
             "[cut] overlap {} must be smaller than the content budget of {budget} tokens (window {} - {specials} specials - {prefix_tokens} prefix)",

@@ -5,7 +5,9 @@
 //! the blind spot kerf exists to show, so both are switched off here and the fact is recorded.
 use std::ops::Range;
 use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
 
+use tokenizers::models::ModelWrapper;
 use tokenizers::Tokenizer;
 
 /// Errors from loading or running a tokenizer.
@@ -106,6 +108,7 @@ pub struct TokenCounter {
     specials_per_input: usize,
     defaults: TokenizerDefaults,
     path: PathBuf,
+    piece_floor: OnceLock<usize>,
 }
 
 impl TokenCounter {
@@ -136,6 +139,7 @@ impl TokenCounter {
             tokenizer,
             defaults,
             path: path.to_path_buf(),
+            piece_floor: OnceLock::new(),
         })
     }
 
@@ -152,6 +156,40 @@ impl TokenCounter {
     /// Vocabulary size including added tokens.
     pub fn vocab_size(&self) -> usize {
         self.tokenizer.get_vocab_size(true)
+    }
+
+    /// The most content tokens one vocabulary token can re-tokenize to when it is cut out of
+    /// the middle of a word and encoded on its own (`##ick` of `pennick` alone is `ic ##k`: 2).
+    ///
+    /// A word longer than the budget is cut into token pieces, and every piece after the first
+    /// starts inside the word, so a content budget below this figure cannot guarantee that a
+    /// one-token piece fits. Worked out once per tokenizer from its vocabulary (WordPiece
+    /// entries with the continuation prefix stripped; other models' tokens as decoded).
+    pub fn piece_floor(&self) -> usize {
+        *self.piece_floor.get_or_init(|| {
+            let vocab = self.tokenizer.get_vocab(false);
+            let prefix = match self.tokenizer.get_model() {
+                ModelWrapper::WordPiece(wp) => Some(wp.continuing_subword_prefix.clone()),
+                _ => None,
+            };
+            let mut floor = 1;
+            for (token, id) in &vocab {
+                let text = match &prefix {
+                    Some(p) => match token.strip_prefix(p.as_str()) {
+                        Some(rest) => rest.to_string(),
+                        None => continue,
+                    },
+                    None => match self.tokenizer.decode(&[*id], false) {
+                        Ok(t) => t,
+                        Err(_) => continue,
+                    },
+                };
+                if let Ok(n) = self.count_content(&text) {
+                    floor = floor.max(n);
+                }
+            }
+            floor
+        })
     }
 
     /// Path of the tokenizer file.

@@ -164,10 +164,15 @@ pub fn parse_trec(queries: &str, qrels: &str, origin: &str) -> Result<Vec<Refere
         let rel = f.get(3).and_then(|r| r.parse::<i64>().ok());
         match (f.len(), rel) {
             (4, Some(rel)) => {
+                // Negative grades count as 0; a grade past u32 is refused, not wrapped.
+                let grade = u32::try_from(rel.max(0)).map_err(|_| RefsError::Bad {
+                    origin: format!("{origin} (qrels)"),
+                    message: format!("line {}: relevance {rel} is out of range", i + 1),
+                })?;
                 judged
                     .entry(f[0].to_string())
                     .or_default()
-                    .insert(f[2].to_string(), rel.max(0) as u32);
+                    .insert(f[2].to_string(), grade);
             }
             _ => {
                 return Err(RefsError::Bad {
@@ -287,6 +292,17 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(e.contains("line 1"), "{e}");
+        // Found by the refs_trec fuzz target: 2^32 + 2 used to wrap to a grade of 2.
+        let e = parse_trec("q1\tx\n", "q1 0 d1 4294967298\n", "q.tsv")
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("line 1: relevance 4294967298 is out of range"),
+            "{e}"
+        );
+        let r = parse_trec("q1\tx\n", "q1 0 d1 -5\nq1 0 d2 4294967295\n", "q.tsv").unwrap();
+        assert_eq!(r[0].expect.get("d1"), Some(&0));
+        assert_eq!(r[0].expect.get("d2"), Some(&u32::MAX));
         let known: HashSet<String> = ["d2".to_string()].into();
         let e = check_known(&r, &known, "q.tsv").unwrap_err().to_string();
         assert!(e.contains("expects document `d1`"), "{e}");

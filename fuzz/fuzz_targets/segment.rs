@@ -1,0 +1,7 @@
+//! Fuzz target `segment`: see `checks::segment` for what it asserts.
+#![no_main]
+use libfuzzer_sys::fuzz_target;
+
+fuzz_target!(|data: &[u8]| {
+    kerf_fuzz::checks::segment(data);
+});
