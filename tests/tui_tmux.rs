@@ -245,3 +245,54 @@ fn a_panic_restores_the_terminal() {
     );
     assert!(!end.contains("window 256"), "alternate screen left: {end}");
 }
+
+/// SIGTERM, SIGINT or SIGHUP sent to the explorer (`kill`, a closed terminal window, a job
+/// scheduler's stop): it leaves the alternate screen, gives the terminal back in cooked mode,
+/// says what stopped and exits 130.
+#[test]
+fn a_signal_restores_the_terminal() {
+    let tmux = Command::new("tmux").arg("-V").output();
+    assert!(
+        tmux.as_ref().is_ok_and(|o| o.status.success()),
+        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
+    );
+    common::model_dir();
+    let demo = common::repo().join("demo-texts");
+    for sig in ["TERM", "INT", "HUP"] {
+        let dir = tempfile::tempdir().unwrap();
+        let pid_file = dir.path().join("pid");
+        // A child shell writes its pid and then becomes kerf (exec), in the foreground.
+        let cmd = format!(
+            "sh -c 'echo $$ > {}; exec {} explore --hash-embedder --no-cache {}'; echo KERF-EXITED-$?; stty -a | grep -o -- '-*icanon' | sed 's/^/TTY-/'; sleep 600",
+            pid_file.display(),
+            env!("CARGO_BIN_EXE_kerf"),
+            demo.display()
+        );
+        let s = Session::start(
+            &format!("kerf-test-sig{sig}-{}", std::process::id()),
+            dir.path(),
+            &cmd,
+        );
+        s.wait_for("window 256");
+        let pid = std::fs::read_to_string(&pid_file).unwrap();
+        let kill = Command::new("kill")
+            .args([&format!("-{sig}"), pid.trim()])
+            .status()
+            .unwrap();
+        assert!(kill.success());
+        let end = s.wait_for("TTY-");
+        assert!(end.contains("KERF-EXITED-130"), "SIG{sig}: {end}");
+        assert!(
+            end.contains("kerf explore stopped by a signal"),
+            "SIG{sig}: {end}"
+        );
+        assert!(
+            end.contains("TTY-icanon"),
+            "SIG{sig}: terminal back in cooked mode: {end}"
+        );
+        assert!(
+            !end.contains("window 256"),
+            "SIG{sig}: alternate screen left: {end}"
+        );
+    }
+}

@@ -183,6 +183,18 @@ pub fn run(a: ExploreArgs) -> Result<()> {
     })?;
     let worker = Worker::spawn(factory, cache_path);
 
+    // SIGINT, SIGTERM and SIGHUP (a closed terminal window) end the loop below, so the terminal
+    // is restored by the guard instead of being left in raw mode on the alternate screen.
+    let signalled = Arc::new(AtomicBool::new(false));
+    for sig in [
+        signal_hook::consts::SIGINT,
+        signal_hook::consts::SIGTERM,
+        signal_hook::consts::SIGHUP,
+    ] {
+        signal_hook::flag::register(sig, signalled.clone())
+            .context("installing a signal handler")?;
+    }
+
     // From here on the terminal is ours: restore it on return, on error and on panic.
     let previous = std::panic::take_hook();
     std::panic::set_hook(Box::new(move |info| {
@@ -211,7 +223,7 @@ pub fn run(a: ExploreArgs) -> Result<()> {
             term.draw(|f| render::draw(f, &app))?;
             dirty = false;
         }
-        if app.quit {
+        if app.quit || signalled.load(Ordering::SeqCst) {
             break;
         }
         let wait = Duration::from_millis(if app.busy() { 40 } else { 250 });
@@ -237,6 +249,13 @@ pub fn run(a: ExploreArgs) -> Result<()> {
     // The worker may be inside a long batch; its finished groups are already in the cache, so
     // the process leaves without waiting for it.
     drop(worker);
+    if signalled.load(Ordering::SeqCst) {
+        return Err(super::Interrupted {
+            what: "kerf explore",
+            kept: "profiles saved before it are kept, and finished vectors are in the cache",
+        }
+        .into());
+    }
     Ok(())
 }
 

@@ -199,6 +199,28 @@ fn is_broken_pipe(e: &anyhow::Error) -> bool {
     })
 }
 
+/// A face ended by SIGINT, SIGTERM or SIGHUP after cleaning up (the explorer); reported without
+/// "error" and with exit 130, like a stopped job.
+#[derive(Debug)]
+pub struct Interrupted {
+    /// The command that stopped.
+    pub what: &'static str,
+    /// What of its work is kept.
+    pub kept: &'static str,
+}
+
+impl std::fmt::Display for Interrupted {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{} stopped by a signal; {}", self.what, self.kept)
+    }
+}
+
+impl std::error::Error for Interrupted {}
+
+fn is_interrupted(e: &anyhow::Error) -> bool {
+    e.chain().any(|c| c.downcast_ref::<Interrupted>().is_some())
+}
+
 fn is_stopped(e: &anyhow::Error) -> bool {
     e.chain().any(|c| {
         matches!(
@@ -270,6 +292,10 @@ pub fn run() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
+        Err(e) if is_interrupted(&e) => {
+            eprintln!("kerf: {e}");
+            ExitCode::from(130)
+        }
         Err(e) if is_stopped(&e) => {
             eprintln!("kerf: stopped: {e}; run the same command again to resume");
             // 128 + SIGINT, as shells report an interrupted command.
