@@ -252,3 +252,103 @@ fn damaged_caches_are_refused_and_rebuilt() {
         no_partials(d);
     }
 }
+
+/// Makes a file or folder unwritable, even for root (the tests run as root here, for whom file
+/// modes do not apply): the immutable attribute through `chattr +i` (e2fsprogs) as root, mode
+/// 0444/0555 otherwise. Undone on drop, so the temporary folder can be removed.
+struct Unwritable {
+    path: PathBuf,
+    immutable: bool,
+}
+
+impl Unwritable {
+    fn new(path: &Path) -> Self {
+        let root = Command::new("id")
+            .arg("-u")
+            .output()
+            .is_ok_and(|o| String::from_utf8_lossy(&o.stdout).trim() == "0");
+        if root {
+            let st = Command::new("chattr").arg("+i").arg(path).status();
+            assert!(
+                st.is_ok_and(|s| s.success()),
+                "chattr +i {} failed: the read-only cache test needs the immutable attribute as root (e2fsprogs, a file system that has it)",
+                path.display()
+            );
+        } else {
+            use std::os::unix::fs::PermissionsExt;
+            let mode = if path.is_dir() { 0o555 } else { 0o444 };
+            std::fs::set_permissions(path, std::fs::Permissions::from_mode(mode)).unwrap();
+        }
+        Unwritable {
+            path: path.to_path_buf(),
+            immutable: root,
+        }
+    }
+}
+
+impl Drop for Unwritable {
+    fn drop(&mut self) {
+        if self.immutable {
+            let _ = Command::new("chattr").arg("-i").arg(&self.path).status();
+        } else {
+            use std::os::unix::fs::PermissionsExt;
+            let _ = std::fs::set_permissions(&self.path, std::fs::Permissions::from_mode(0o755));
+        }
+    }
+}
+
+/// A cache that cannot be written (the file, or the folder it and its WAL files live in) is
+/// refused when it is opened, before any work, naming the file and the ways out; `--no-cache`
+/// or another `--cache` file then gives the exact output. `--rebuild-cache` on a file that
+/// cannot be deleted says so rather than calling the file corrupt.
+#[test]
+fn read_only_caches_are_refused_before_any_work() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    ok(&run(d, &embed_args(&demo(), "whole", "good.sqlite")));
+
+    // The file itself.
+    let cache = d.join("ro.sqlite");
+    std::fs::copy(d.join("good.sqlite"), &cache).unwrap();
+    {
+        let lock = Unwritable::new(&cache);
+        let err = fails(&run(d, &embed_args(&demo(), "out", "ro.sqlite")));
+        assert!(err.contains("ro.sqlite is read-only"), "{err}");
+        assert!(err.contains("--no-cache"), "{err}");
+        assert!(!d.join("out").exists());
+        let mut args = embed_args(&demo(), "out", "ro.sqlite");
+        args.push("--rebuild-cache".into());
+        let out = run(d, &args);
+        if lock.immutable {
+            // The file cannot go, and the message says so instead of calling it corrupt.
+            let err = fails(&out);
+            assert!(err.contains("cannot be deleted to rebuild it"), "{err}");
+            assert!(err.contains("remove it by hand"), "{err}");
+            assert!(!d.join("out").exists());
+        } else {
+            // A 0444 file in a writable folder is deleted and rebuilt.
+            ok(&out);
+            assert!(files_of(&d.join("out")) == files_of(&d.join("whole")));
+            std::fs::remove_dir_all(d.join("out")).unwrap();
+        }
+    }
+
+    // The folder: SQLite cannot make the WAL files beside the cache.
+    let sub = d.join("locked");
+    std::fs::create_dir(&sub).unwrap();
+    std::fs::copy(d.join("good.sqlite"), sub.join("c.sqlite")).unwrap();
+    {
+        let _lock = Unwritable::new(&sub);
+        let out = run(d, &embed_args(&demo(), "out", "locked/c.sqlite"));
+        let err = fails(&out);
+        assert!(err.contains("locked/c.sqlite"), "{err}");
+        assert!(!d.join("out").exists());
+    }
+
+    let mut args = embed_args(&demo(), "out", "unused.sqlite");
+    args.retain(|a| a != "--cache" && a != "unused.sqlite");
+    args.push("--no-cache".into());
+    ok(&run(d, &args));
+    assert!(files_of(&d.join("out")) == files_of(&d.join("whole")));
+    no_partials(d);
+}

@@ -250,6 +250,10 @@ fn hint(e: &(dyn std::error::Error + 'static)) -> &'static str {
     fn cache(e: &CacheError) -> &'static str {
         match e {
             CacheError::Corrupt { .. } => "; pass --rebuild-cache to delete and recreate it",
+            CacheError::ReadOnly { .. } => {
+                " (make it writable, give --cache another file, or pass --no-cache)"
+            }
+            CacheError::Undeletable { .. } => " (remove it by hand or give --cache another file)",
             _ => "",
         }
     }

@@ -29,6 +29,20 @@ pub enum CacheError {
         /// What the operating system or library said.
         source: rusqlite::Error,
     },
+    /// The file can be read but not written (file mode, an immutable flag, a read-only mount).
+    #[error("vector cache {path} is read-only: kerf stores every new vector in it")]
+    ReadOnly {
+        /// The cache file.
+        path: PathBuf,
+    },
+    /// `rebuild` could not delete the old file.
+    #[error("vector cache {path} cannot be deleted to rebuild it: {reason}")]
+    Undeletable {
+        /// The file that stayed.
+        path: PathBuf,
+        /// What the operating system said.
+        reason: String,
+    },
     /// The file is damaged.
     #[error("vector cache {path} is corrupt ({detail})")]
     Corrupt {
@@ -101,6 +115,13 @@ impl VectorCache {
             detail,
         };
         let conn = Connection::open(path).map_err(sql)?;
+        // SQLite falls back to read-only when it may not write the file; every run stores
+        // vectors, so say so now rather than after the first batch has been embedded.
+        if conn.is_readonly(rusqlite::MAIN_DB).map_err(sql)? {
+            return Err(CacheError::ReadOnly {
+                path: path.to_path_buf(),
+            });
+        }
         conn.busy_timeout(std::time::Duration::from_secs(30))
             .map_err(sql)?;
         // A file that is not SQLite at all fails on the first statement.
@@ -159,9 +180,9 @@ impl VectorCache {
         for suffix in ["", "-wal", "-shm"] {
             let p = PathBuf::from(format!("{}{suffix}", path.display()));
             if p.exists() {
-                std::fs::remove_file(&p).map_err(|e| CacheError::Corrupt {
+                std::fs::remove_file(&p).map_err(|e| CacheError::Undeletable {
                     path: p.clone(),
-                    detail: format!("cannot delete: {e}"),
+                    reason: e.to_string(),
                 })?;
             }
         }
