@@ -174,6 +174,18 @@ pub fn rank_documents(
     doc_vecs: &[Option<Vec<f32>>],
     how: ChunkPooling,
 ) -> Vec<DocScore> {
+    rank_documents_by(corpus, q, chunk_cos, &|d| doc_vecs[d].as_deref(), how)
+}
+
+/// [`rank_documents`] with each document's pooled vector given by a function, so that one
+/// document's vector can be swapped for another without copying the rest.
+pub fn rank_documents_by<'v>(
+    corpus: &Corpus,
+    q: &[f32],
+    chunk_cos: &[Vec<f32>],
+    doc_vec: &dyn Fn(usize) -> Option<&'v [f32]>,
+    how: ChunkPooling,
+) -> Vec<DocScore> {
     let mut scores: Vec<DocScore> = chunk_cos
         .iter()
         .enumerate()
@@ -183,7 +195,7 @@ pub fn rank_documents(
             let score = match how {
                 ChunkPooling::Best => cos[best_chunk],
                 ChunkPooling::Sum => cos.iter().sum(),
-                _ => doc_vecs[d].as_ref().map_or(0.0, |dv| pool::cosine(q, dv)),
+                _ => doc_vec(d).map_or(0.0, |dv| pool::cosine(q, dv)),
             };
             DocScore {
                 doc: d,

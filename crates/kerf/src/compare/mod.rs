@@ -1,5 +1,6 @@
 //! Comparing plans: reference texts, ranking metrics, and scoring documents under a plan.
 pub mod engine;
 pub mod metrics;
+pub mod probes;
 pub mod refs;
 pub mod sweep;
