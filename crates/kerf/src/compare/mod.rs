@@ -1,4 +1,5 @@
 //! Comparing plans: reference texts, ranking metrics, and scoring documents under a plan.
+pub mod chart;
 pub mod engine;
 pub mod metrics;
 pub mod refs;
