@@ -10,6 +10,7 @@ use clap::{Args, ValueEnum};
 
 use kerf::compare::chart::{self, ChartInput, ChartPlan, CostAxis};
 use kerf::compare::engine::{self, Corpus, PlanEval};
+use kerf::compare::handout::{self, Handout, HandoutPlan};
 use kerf::compare::refs::{self, Reference};
 use kerf::compare::sweep::{self, Cost, Grid};
 use kerf::embed::Precision;
@@ -29,6 +30,9 @@ pub enum Metric {
     /// Recall@10.
     Recall,
 }
+
+/// Documents listed per reference and plan in the handout.
+const HANDOUT_TOP: usize = 3;
 
 /// What the chart's cost axis shows.
 #[derive(Clone, Copy, ValueEnum)]
@@ -349,9 +353,12 @@ pub fn run(a: SweepArgs) -> Result<()> {
         Metric::Recall => "Recall@10",
     };
     let rec = sweep::recommend(&names, &points, a.tolerance, metric);
-    if let (Some(path), Some((i, why))) = (&a.save_best, &rec) {
+    let best_profile = rec.as_ref().map(|(i, why)| {
         let mut p = rows[*i].profile.clone();
         p.about = format!("recommended by kerf sweep: {why}");
+        p
+    });
+    if let (Some(path), Some(p)) = (&a.save_best, &best_profile) {
         kerf::store::write_atomic(path, p.to_toml().as_bytes(), true)
             .with_context(|| format!("saving {}", path.display()))?;
         eprintln!("kerf: wrote the recommended plan to {}", path.display());
@@ -389,6 +396,56 @@ pub fn run(a: SweepArgs) -> Result<()> {
         kerf::store::write_atomic(path, chart::render(&chart_in).as_bytes(), true)
             .with_context(|| format!("writing the chart {}", path.display()))?;
         eprintln!("kerf: wrote the chart to {}", path.display());
+    }
+    if let Some(path) = &a.handout {
+        let eval_of = |index: usize| evals.iter().find(|(i, _)| *i == index).map(|(_, e)| e);
+        let base_eval = eval_of(base_index);
+        let ordered: Vec<&PlanEval> = base_eval
+            .into_iter()
+            .chain(rows.iter().filter_map(|r| eval_of(r.index)))
+            .collect();
+        let plan_row = |r: &Row, pareto: bool, recommended: bool, baseline: bool| HandoutPlan {
+            name: r.profile.name.clone(),
+            quality: r.quality,
+            summary: r.summary.clone(),
+            chunks: r.cost.chunks,
+            input_tokens: r.cost.input_tokens,
+            seconds: Some(r.cost.embed_seconds).filter(|x| x.is_finite()),
+            pareto,
+            recommended,
+            baseline,
+        };
+        let doc = Handout {
+            title: format!("Chunking plans for {corpus_name}"),
+            made_by: format!(
+                "kerf sweep {} over {} documents{}, {} references, grid \"{}\", quality measured as {metric}.",
+                env!("CARGO_PKG_VERSION"),
+                corpus.docs.len(),
+                if scale != 1.0 { " (a length-stratified sample; costs extrapolated)" } else { "" },
+                references.len(),
+                a.grid
+            ),
+            metric: metric.to_string(),
+            plans: baseline_row
+                .iter()
+                .map(|b| plan_row(b, false, false, true))
+                .chain(rows.iter().enumerate().map(|(i, r)| {
+                    plan_row(r, front.contains(&i), rec.as_ref().is_some_and(|(k, _)| *k == i), false)
+                }))
+                .collect(),
+            recommendation: rec.as_ref().map(|(_, why)| why.clone()),
+            chart_svg: Some(chart::render(&chart_in)),
+            references: handout::ref_sections(&corpus, &references, &ordered, base_eval, HANDOUT_TOP),
+            census: base_eval.map(|b| handout::census(&corpus, &b.plan)),
+            profile_toml: best_profile.as_ref().map(Profile::to_toml),
+            model: base_loaded.info.clone(),
+        };
+        doc.write(path)
+            .with_context(|| format!("writing the handout {}", path.display()))?;
+        eprintln!(
+            "kerf: wrote the handout to {} (it quotes the documents: share it as you would them)",
+            path.display()
+        );
     }
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());
     if a.json {
