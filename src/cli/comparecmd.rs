@@ -45,6 +45,10 @@ pub struct CompareArgs {
     /// One CSV row per reference, plan and listed document.
     #[arg(long, conflicts_with = "json")]
     pub csv: bool,
+    /// Write a self-contained HTML handout: plans, chart, rankings per reference, census,
+    /// the recommended profile. It quotes document text: share it as you would the documents.
+    #[arg(long, value_name = "FILE.html")]
+    pub handout: Option<PathBuf>,
     #[command(flatten)]
     pub encoder: EncoderArgs,
 }
@@ -215,6 +219,9 @@ pub fn run(a: CompareArgs) -> Result<()> {
             eval,
             tau_vs_first: tau,
         });
+    }
+    if let Some(path) = &a.handout {
+        write_handout(path, &a, &plans, &evals, &corpus, &references)?;
     }
     let base = &evals[0].eval;
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());
@@ -387,5 +394,120 @@ pub fn run(a: CompareArgs) -> Result<()> {
         )?;
     }
     out.flush().context("writing the comparison")?;
+    Ok(())
+}
+
+/// The handout of a comparison: plans measured by nDCG@10 against encoder-input tokens, the
+/// front and a recommendation among the given profiles (within 0.01 of the best counts as
+/// equally good, as `kerf sweep`'s default tolerance).
+fn write_handout(
+    path: &std::path::Path,
+    a: &CompareArgs,
+    plans: &[Loaded],
+    evals: &[Evaluated],
+    corpus: &Corpus,
+    references: &[Reference],
+) -> Result<()> {
+    use kerf::compare::chart::{self, ChartInput, ChartPlan, CostAxis};
+    use kerf::compare::handout::{self, Handout, HandoutPlan};
+    use kerf::compare::sweep;
+    const METRIC: &str = "nDCG@10";
+    let has_base = !a.no_baseline;
+    let skip = usize::from(has_base);
+    let rest = &evals[skip..];
+    let points: Vec<(f64, f64)> = rest
+        .iter()
+        .map(|e| (e.eval.summary.ndcg_at_10, e.eval.input_tokens as f64))
+        .collect();
+    let names: Vec<String> = rest
+        .iter()
+        .map(|e| e.eval.plan.profile.name.clone())
+        .collect();
+    let front = sweep::pareto_front(&points);
+    let rec = sweep::recommend(&names, &points, 0.01, METRIC);
+    let chart_plan = |e: &PlanEval, on_front: bool| ChartPlan {
+        name: e.plan.profile.name.clone(),
+        cost: e.input_tokens as f64,
+        quality: e.summary.ndcg_at_10,
+        on_front,
+    };
+    let corpus_name = a
+        .input
+        .paths
+        .iter()
+        .map(|p| {
+            p.file_name().map_or_else(
+                || p.display().to_string(),
+                |n| n.to_string_lossy().into_owned(),
+            )
+        })
+        .collect::<Vec<_>>()
+        .join(", ");
+    let chart_in = ChartInput {
+        title: format!("kerf compare on {corpus_name}: {METRIC} against cost"),
+        metric: METRIC.into(),
+        cost_axis: CostAxis::Tokens,
+        plans: rest
+            .iter()
+            .enumerate()
+            .map(|(i, e)| chart_plan(&e.eval, front.contains(&i)))
+            .collect(),
+        recommended: rec.as_ref().map(|(i, _)| *i),
+        baseline: has_base.then(|| chart_plan(&evals[0].eval, false)),
+    };
+    let base_eval = has_base.then(|| &evals[0].eval);
+    let all: Vec<&PlanEval> = evals.iter().map(|e| &e.eval).collect();
+    let best_profile = rec.as_ref().map(|(i, why)| {
+        let mut p = rest[*i].eval.plan.profile.clone();
+        p.about = format!("recommended by kerf compare: {why}");
+        p
+    });
+    let doc = Handout {
+        title: format!("Chunking plans for {corpus_name}"),
+        made_by: format!(
+            "kerf compare {} over {} documents, {} references, {} plans{}.",
+            env!("CARGO_PKG_VERSION"),
+            corpus.docs.len(),
+            references.len(),
+            rest.len(),
+            if has_base {
+                " and the truncation baseline"
+            } else {
+                ""
+            }
+        ),
+        metric: METRIC.into(),
+        plans: evals
+            .iter()
+            .enumerate()
+            .map(|(k, e)| {
+                let i = k.checked_sub(skip);
+                let s = &e.eval.summary;
+                HandoutPlan {
+                    name: e.eval.plan.profile.name.clone(),
+                    quality: s.ndcg_at_10,
+                    summary: s.clone(),
+                    chunks: e.eval.chunks.iter().map(Vec::len).sum(),
+                    input_tokens: e.eval.input_tokens,
+                    seconds: None,
+                    pareto: i.is_some_and(|i| front.contains(&i)),
+                    recommended: i.is_some() && rec.as_ref().map(|(r, _)| *r) == i,
+                    baseline: i.is_none(),
+                }
+            })
+            .collect(),
+        recommendation: rec.as_ref().map(|(_, why)| why.clone()),
+        chart_svg: Some(chart::render(&chart_in)),
+        references: handout::ref_sections(corpus, references, &all, base_eval, a.top),
+        census: Some(handout::census(corpus, &plans[0].plan)),
+        profile_toml: best_profile.as_ref().map(Profile::to_toml),
+        model: plans[0].info.clone(),
+    };
+    doc.write(path)
+        .with_context(|| format!("writing the handout {}", path.display()))?;
+    eprintln!(
+        "kerf: wrote the handout to {} (it quotes the documents: share it as you would them)",
+        path.display()
+    );
     Ok(())
 }

@@ -8,14 +8,16 @@ use std::time::Instant;
 use anyhow::{Context, Result};
 use clap::{Args, ValueEnum};
 
-use kerf::compare::engine::{self, Corpus};
+use kerf::compare::chart::{self, ChartInput, ChartPlan, CostAxis};
+use kerf::compare::engine::{self, Corpus, PlanEval};
+use kerf::compare::handout::{self, Handout, HandoutPlan};
 use kerf::compare::refs::{self, Reference};
 use kerf::compare::sweep::{self, Cost, Grid};
 use kerf::embed::Precision;
 use kerf::plan;
 use kerf::profile::Profile;
 
-use super::comparecmd::{read_corpus, Encoders};
+use super::comparecmd::{baseline_profile, read_corpus, Encoders};
 use super::embed::EncoderArgs;
 use super::{load_plan, InputArgs, PlanArgs};
 
@@ -27,6 +29,18 @@ pub enum Metric {
     Mrr,
     /// Recall@10.
     Recall,
+}
+
+/// Documents listed per reference and plan in the handout.
+const HANDOUT_TOP: usize = 3;
+
+/// What the chart's cost axis shows.
+#[derive(Clone, Copy, ValueEnum)]
+pub enum ChartCost {
+    /// Encoder-input tokens over the corpus.
+    Tokens,
+    /// Estimated seconds to embed the corpus, at the throughput measured in this run.
+    Seconds,
 }
 
 #[derive(Args)]
@@ -69,6 +83,13 @@ pub struct SweepArgs {
     /// Write a quality-against-cost chart (SVG).
     #[arg(long)]
     pub chart: Option<PathBuf>,
+    /// Write a self-contained HTML handout: plans, chart, rankings per reference, census,
+    /// the recommended profile. It quotes document text: share it as you would the documents.
+    #[arg(long, value_name = "FILE.html")]
+    pub handout: Option<PathBuf>,
+    /// The chart's cost axis: encoder-input tokens, or estimated seconds to embed.
+    #[arg(long, value_enum, default_value = "tokens")]
+    pub chart_cost: ChartCost,
     /// Machine-readable output (JSON).
     #[arg(long)]
     pub json: bool,
@@ -77,69 +98,46 @@ pub struct SweepArgs {
 }
 
 struct Row {
+    /// Index into the sweep's plans (the baseline comes after the grid's plans).
+    index: usize,
     profile: Profile,
     quality: f64,
     summary: kerf::compare::metrics::Summary,
     cost: Cost,
 }
 
-fn chart(path: &std::path::Path, rows: &[Row], front: &[usize], metric: &str) -> Result<()> {
-    use plotters::prelude::*;
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
-        root.fill(&WHITE)?;
-        let xmax = rows
+/// The chart's input from the sweep's rows: cost on the chosen axis, quality on the metric.
+fn chart_input(
+    rows: &[Row],
+    baseline: Option<&Row>,
+    front: &[usize],
+    recommended: Option<usize>,
+    metric: &str,
+    axis: CostAxis,
+    corpus_name: &str,
+) -> ChartInput {
+    let cost = |r: &Row| match axis {
+        CostAxis::Tokens => r.cost.input_tokens as f64,
+        CostAxis::Seconds => r.cost.embed_seconds,
+    };
+    let point = |r: &Row, on_front: bool| ChartPlan {
+        name: r.profile.name.clone(),
+        cost: cost(r),
+        quality: r.quality,
+        on_front,
+    };
+    ChartInput {
+        title: format!("kerf sweep of {corpus_name}: {metric} against cost"),
+        metric: metric.to_string(),
+        cost_axis: axis,
+        plans: rows
             .iter()
-            .map(|r| r.cost.input_tokens as f64)
-            .fold(1.0, f64::max)
-            * 1.08;
-        let ymax = rows.iter().map(|r| r.quality).fold(0.0, f64::max).max(0.05) * 1.1;
-        let mut c = ChartBuilder::on(&root)
-            .caption(
-                format!("kerf sweep: {metric} against tokens embedded"),
-                ("sans-serif", 22),
-            )
-            .margin(20)
-            .x_label_area_size(45)
-            .y_label_area_size(60)
-            .build_cartesian_2d(0.0..xmax, 0.0..ymax.min(1.0))?;
-        c.configure_mesh()
-            .x_desc("encoder-input tokens (cost)")
-            .y_desc(metric)
-            .draw()?;
-        let mut on_front: Vec<(f64, f64)> = front
-            .iter()
-            .map(|&i| (rows[i].cost.input_tokens as f64, rows[i].quality))
-            .collect();
-        on_front.sort_by(|a, b| a.0.total_cmp(&b.0));
-        c.draw_series(LineSeries::new(
-            on_front.clone(),
-            RGBColor(200, 80, 30).stroke_width(2),
-        ))?;
-        c.draw_series(rows.iter().enumerate().map(|(i, r)| {
-            let front_pt = front.contains(&i);
-            Circle::new(
-                (r.cost.input_tokens as f64, r.quality),
-                if front_pt { 6 } else { 4 },
-                if front_pt {
-                    RGBColor(200, 80, 30).filled()
-                } else {
-                    RGBColor(90, 110, 140).filled()
-                },
-            )
-        }))?;
-        c.draw_series(front.iter().map(|&i| {
-            Text::new(
-                rows[i].profile.name.clone(),
-                (rows[i].cost.input_tokens as f64, rows[i].quality),
-                ("sans-serif", 12),
-            )
-        }))?;
-        root.present()?;
+            .enumerate()
+            .map(|(i, r)| point(r, front.contains(&i)))
+            .collect(),
+        recommended,
+        baseline: baseline.map(|b| point(b, false)),
     }
-    kerf::store::write_atomic(path, svg.as_bytes(), true)?;
-    Ok(())
 }
 
 pub fn run(a: SweepArgs) -> Result<()> {
@@ -153,7 +151,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
     )?;
     let mut base = base_loaded.plan.profile.clone();
     base.model.folder = Some(base_loaded.info.dir.clone());
-    let plans = grid.plans(&base);
+    let mut plans = grid.plans(&base);
     anyhow::ensure!(
         !plans.is_empty(),
         "the grid gives no valid plan (check windows against overlaps)"
@@ -217,9 +215,19 @@ pub fn run(a: SweepArgs) -> Result<()> {
     // Encoding seconds and tokens per precision: int8 runs faster than f32, so each plan's
     // time is estimated from its own precision's measured rate.
     let mut measured: Vec<(Precision, f64, usize)> = Vec::new();
-    let bar = super::embed::progress_bar(groups.len(), a.encoder.quiet, "sweep");
+    let bar = super::embed::progress_bar(groups.len() + 1, a.encoder.quiet, "sweep");
     let mut interrupted = false;
-    for (gi, (_, members)) in groups.iter().enumerate() {
+    // The truncation baseline is measured after the grid, as one more chunk set: the chart
+    // draws it as the reference line and the handout measures rank moves against it.
+    let base_index = plans.len();
+    plans.push(baseline_profile(
+        base_loaded.info.default_window(),
+        base.model.folder.clone(),
+    ));
+    let mut order: Vec<Vec<usize>> = groups.values().cloned().collect();
+    order.push(vec![base_index]);
+    let mut evals: Vec<(usize, PlanEval)> = Vec::new();
+    for (gi, members) in order.iter().enumerate() {
         if stop.load(Ordering::SeqCst) {
             interrupted = true;
             break;
@@ -255,7 +263,9 @@ pub fn run(a: SweepArgs) -> Result<()> {
             Some(m) => (m.1, m.2) = (m.1 + seconds, m.2 + tokens),
             None => measured.push((first.pool.precision, seconds, tokens)),
         }
-        embedded += n_new;
+        if members[0] != base_index {
+            embedded += n_new;
+        }
         let padding = after.padded_tokens.saturating_sub(after.real_tokens)
             - before.padded_tokens.saturating_sub(before.real_tokens);
         for &pi in members {
@@ -271,7 +281,9 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 n_new,
             );
             let n_chunks: usize = ev.chunks.iter().map(Vec::len).sum();
-            scored += n_chunks;
+            if pi != base_index {
+                scored += n_chunks;
+            }
             let quality = match a.metric {
                 Metric::Ndcg => ev.summary.ndcg_at_10,
                 Metric::Mrr => ev.summary.mrr_at_10,
@@ -288,11 +300,15 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 storage_f16_bytes: (n_chunks as f64 * scale) as usize * dim * 2,
             };
             rows.push(Row {
+                index: pi,
                 profile: plans[pi].clone(),
                 quality,
-                summary: ev.summary,
+                summary: ev.summary.clone(),
                 cost,
             });
+            if a.handout.is_some() {
+                evals.push((pi, ev));
+            }
         }
         if let Some(b) = &bar {
             b.set_position(gi as u64 + 1);
@@ -301,11 +317,15 @@ pub fn run(a: SweepArgs) -> Result<()> {
     if let Some(b) = bar {
         b.finish_and_clear();
     }
+    let mut baseline_row = rows
+        .iter()
+        .position(|r| r.index == base_index)
+        .map(|i| rows.remove(i));
     anyhow::ensure!(!rows.is_empty(), "sweep interrupted before any plan finished (vectors embedded so far are kept in the cache)");
     // Time estimates from the throughput measured in this sweep, per precision (unknown when
     // a precision's vectors all came from the cache).
     let rates = measured_rates(&measured);
-    for r in &mut rows {
+    for r in rows.iter_mut().chain(baseline_row.as_mut()) {
         r.cost.embed_seconds = match rates.iter().find(|(p, _)| *p == r.profile.pool.precision) {
             Some((_, rate)) => r.cost.input_tokens as f64 / rate,
             None => f64::NAN,
@@ -333,17 +353,99 @@ pub fn run(a: SweepArgs) -> Result<()> {
         Metric::Recall => "Recall@10",
     };
     let rec = sweep::recommend(&names, &points, a.tolerance, metric);
-    if let (Some(path), Some((i, why))) = (&a.save_best, &rec) {
+    let best_profile = rec.as_ref().map(|(i, why)| {
         let mut p = rows[*i].profile.clone();
         p.about = format!("recommended by kerf sweep: {why}");
+        p
+    });
+    if let (Some(path), Some(p)) = (&a.save_best, &best_profile) {
         kerf::store::write_atomic(path, p.to_toml().as_bytes(), true)
             .with_context(|| format!("saving {}", path.display()))?;
         eprintln!("kerf: wrote the recommended plan to {}", path.display());
     }
+    let mut axis = match a.chart_cost {
+        ChartCost::Tokens => CostAxis::Tokens,
+        ChartCost::Seconds => CostAxis::Seconds,
+    };
+    if axis == CostAxis::Seconds && rows.iter().any(|r| !r.cost.embed_seconds.is_finite()) {
+        eprintln!("kerf: no embedding time was measured for every plan (their vectors came from the cache), so the chart's cost axis shows tokens");
+        axis = CostAxis::Tokens;
+    }
+    let corpus_name = a
+        .input
+        .paths
+        .iter()
+        .map(|p| {
+            p.file_name().map_or_else(
+                || p.display().to_string(),
+                |n| n.to_string_lossy().into_owned(),
+            )
+        })
+        .collect::<Vec<_>>()
+        .join(", ");
+    let chart_in = chart_input(
+        &rows,
+        baseline_row.as_ref(),
+        &front,
+        rec.as_ref().map(|(i, _)| *i),
+        metric,
+        axis,
+        &corpus_name,
+    );
     if let Some(path) = &a.chart {
-        chart(path, &rows, &front, metric)
-            .with_context(|| format!("drawing {}", path.display()))?;
+        kerf::store::write_atomic(path, chart::render(&chart_in).as_bytes(), true)
+            .with_context(|| format!("writing the chart {}", path.display()))?;
         eprintln!("kerf: wrote the chart to {}", path.display());
+    }
+    if let Some(path) = &a.handout {
+        let eval_of = |index: usize| evals.iter().find(|(i, _)| *i == index).map(|(_, e)| e);
+        let base_eval = eval_of(base_index);
+        let ordered: Vec<&PlanEval> = base_eval
+            .into_iter()
+            .chain(rows.iter().filter_map(|r| eval_of(r.index)))
+            .collect();
+        let plan_row = |r: &Row, pareto: bool, recommended: bool, baseline: bool| HandoutPlan {
+            name: r.profile.name.clone(),
+            quality: r.quality,
+            summary: r.summary.clone(),
+            chunks: r.cost.chunks,
+            input_tokens: r.cost.input_tokens,
+            seconds: Some(r.cost.embed_seconds).filter(|x| x.is_finite()),
+            pareto,
+            recommended,
+            baseline,
+        };
+        let doc = Handout {
+            title: format!("Chunking plans for {corpus_name}"),
+            made_by: format!(
+                "kerf sweep {} over {} documents{}, {} references, grid \"{}\", quality measured as {metric}.",
+                env!("CARGO_PKG_VERSION"),
+                corpus.docs.len(),
+                if scale != 1.0 { " (a length-stratified sample; costs extrapolated)" } else { "" },
+                references.len(),
+                a.grid
+            ),
+            metric: metric.to_string(),
+            plans: baseline_row
+                .iter()
+                .map(|b| plan_row(b, false, false, true))
+                .chain(rows.iter().enumerate().map(|(i, r)| {
+                    plan_row(r, front.contains(&i), rec.as_ref().is_some_and(|(k, _)| *k == i), false)
+                }))
+                .collect(),
+            recommendation: rec.as_ref().map(|(_, why)| why.clone()),
+            chart_svg: Some(chart::render(&chart_in)),
+            references: handout::ref_sections(&corpus, &references, &ordered, base_eval, HANDOUT_TOP),
+            census: base_eval.map(|b| handout::census(&corpus, &b.plan)),
+            profile_toml: best_profile.as_ref().map(Profile::to_toml),
+            model: base_loaded.info.clone(),
+        };
+        doc.write(path)
+            .with_context(|| format!("writing the handout {}", path.display()))?;
+        eprintln!(
+            "kerf: wrote the handout to {} (it quotes the documents: share it as you would them)",
+            path.display()
+        );
     }
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());
     if a.json {
@@ -365,6 +467,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 "tokens_per_second": rates.iter().map(|(p, r)| (p.name(), *r)).collect::<std::collections::BTreeMap<_, _>>(),
                 "sampled": scale != 1.0,
                 "interrupted": interrupted,
+                "baseline": baseline_row.as_ref().map(|b| serde_json::json!({ "name": b.profile.name, "quality": b.quality, "summary": b.summary, "cost": b.cost })),
             }))?
         )?;
     } else {
@@ -388,6 +491,18 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 r.cost.overhead,
                 r.cost.embed_seconds,
                 r.cost.storage_f32_bytes as f64 / 1e6
+            )?;
+        }
+        if let Some(b) = &baseline_row {
+            writeln!(
+                out,
+                "  {:<w$} {:>8.3} {:>7.3} {:>7.3} {:>8} {:>10}   (truncation baseline)",
+                b.profile.name,
+                b.quality,
+                b.summary.mrr_at_10,
+                b.summary.recall_at_10,
+                b.cost.chunks,
+                super::survey::thousands(b.cost.input_tokens),
             )?;
         }
         writeln!(out, "◆ on the quality/cost front · {} chunk sets for {} plans: {embedded} chunks embedded, {scored} chunks scored{rate_note}", groups.len(), rows.len())?;
