@@ -268,3 +268,74 @@ fn sweep_embeds_each_chunk_set_once_and_saves_the_best() {
     ));
     assert!(e.contains("24 plans") && e.contains("--max-plans 5"), "{e}");
 }
+
+/// Without `--refs`, compare judges plans by self-retrieval and says so; the draw is the same
+/// from run to run; with `--refs` and `--probes` both are reported; outputs that need
+/// references refuse to run without them.
+#[test]
+fn compare_without_references_judges_by_self_retrieval() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    setup(d);
+    let s128 = common::repo()
+        .join("profiles/sentences-128.toml")
+        .display()
+        .to_string();
+    let args = [
+        "compare", "-p", &s128, "corpus", "--probes", "40", "--cache", "c.sqlite", "-q",
+    ];
+    let run = kerf_in(d, &[&args[..], &["--json"]].concat());
+    let stderr = String::from_utf8_lossy(&run.stderr).into_owned();
+    let v: serde_json::Value = serde_json::from_str(&ok(&run)).unwrap();
+    assert!(stderr.contains("self-retrieval: 40 sentences"), "{stderr}");
+    assert_eq!(v["probes"]["count"], 40);
+    assert_eq!(v["probes"]["documents"], 4, "spread over the four chapters");
+    let plans = v["plans"].as_array().unwrap();
+    assert_eq!(plans.len(), 2);
+    for p in plans {
+        let s = &p["self_retrieval"];
+        assert_eq!(s["summary"]["queries"], 40, "{p}");
+        let mrr = s["summary"]["mrr_at_10"].as_f64().unwrap();
+        assert!((0.0..=1.0).contains(&mrr));
+        assert!(s["holed_tokens"].as_u64().unwrap() > 0);
+        assert!(!s["bands"].as_array().unwrap().is_empty());
+    }
+    // The same draw and the same figures on a second run (vectors now from the cache).
+    let again: serde_json::Value =
+        serde_json::from_str(&ok(&kerf_in(d, &[&args[..], &["--json"]].concat()))).unwrap();
+    assert_eq!(again["probes"], v["probes"]);
+    for (a, b) in again["plans"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(v["plans"].as_array().unwrap())
+    {
+        assert_eq!(
+            a["self_retrieval"]["summary"],
+            b["self_retrieval"]["summary"]
+        );
+    }
+    let text = ok(&kerf_in(d, &args));
+    assert!(
+        text.contains("self-retrieval") && text.contains("last"),
+        "{text}"
+    );
+    assert!(text.contains("baseline-head-256"), "{text}");
+    // Beside references, when asked.
+    let both: serde_json::Value = serde_json::from_str(&ok(&kerf_in(
+        d,
+        &[&args[..], &["--refs", "refs.toml", "--json"]].concat(),
+    )))
+    .unwrap();
+    assert_eq!(both["plans"][1]["summary"]["queries"], 4);
+    assert_eq!(both["plans"][1]["self_retrieval"]["summary"]["queries"], 40);
+    // CSV and the handout list references: refused without them.
+    for extra in [&["--csv"][..], &["--handout", "h.html"][..]] {
+        // A usage error: clap's exit code 2.
+        let out = kerf_in(d, &[&args[..], extra].concat());
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{err}");
+        assert!(err.contains("--refs"), "{err}");
+    }
+    assert!(!d.join("h.html").exists());
+}

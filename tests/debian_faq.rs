@@ -225,3 +225,187 @@ fn debian_faq_retrieval() {
         }
     }
 }
+
+/// Self-retrieval (the inverse cloze task, `compare::probes`) against the FAQ's own questions:
+/// ten plans (truncation; 128-token windows, sentences of 128 and paragraphs of 256, each with
+/// mean, MaxP and sum of chunks) are ranked once by the MRR@10 of 120 probes and once by that
+/// of the 119 question headings (the labelled check above); Kendall's tau-b between the two
+/// rankings is printed (README, "Plans without labelled queries"). What must hold, whatever tau
+/// is: truncation's blind spot shows in the probes (its last-tenth band well below its first
+/// window, and below the best chunked plan's last tenth), no probe sentence is left in the
+/// chunks its own document is scored with, and the draw is the same for the same seed.
+#[test]
+fn self_retrieval_against_the_faq_questions() {
+    use kerf::compare::metrics::kendall_tau_b;
+    use kerf::compare::probes::{self, Depth, ProbeOptions};
+
+    let text = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
+    let (chapters, questions) = parse(&text);
+    let docs: Vec<Document> = chapters
+        .iter()
+        .map(|(n, body)| Document {
+            id: format!("chapter-{n:02}"),
+            origin: "faq".into(),
+            text: body.clone(),
+        })
+        .collect();
+    let refs: Vec<Reference> = questions
+        .iter()
+        .enumerate()
+        .map(|(i, (q, ch))| Reference {
+            id: format!("q{i}"),
+            text: q.clone(),
+            prefix: String::new(),
+            kind: "question".into(),
+            expect: [(format!("chapter-{ch:02}"), 1)].into(),
+        })
+        .collect();
+    let (info, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
+    let corpus = Corpus::new(docs, &counter).unwrap();
+    let opts = ProbeOptions::new(120, 7, info.default_window());
+    let set = probes::draw(&corpus, &opts);
+    assert_eq!(set.probes.len(), 120, "{:?}", set.skipped);
+    assert_eq!(probes::draw(&corpus, &opts), set, "same seed, same draw");
+    assert_ne!(
+        probes::draw(&corpus, &ProbeOptions::new(120, 8, info.default_window())).probes,
+        set.probes
+    );
+    assert!(
+        set.documents >= 15,
+        "spread over documents: {}",
+        set.documents
+    );
+    for b in Depth::ALL {
+        let n = set.probes.iter().filter(|p| p.depth == b).count();
+        assert!(n >= 20, "{n} probes in band {b:?}");
+    }
+    let embedder = BertEmbedder::load(
+        &info.dir,
+        &EmbedOptions {
+            max_input_tokens: 512,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let ref_vectors = engine::embed_refs(&embedder, None, &refs).unwrap();
+    let probe_vectors =
+        engine::embed_refs(&embedder, None, &probes::references(&corpus, &set, "")).unwrap();
+    let mk = |window: usize, boundary: Boundary, overlap: usize| {
+        let mut p = Profile::default();
+        p.cut.window = window;
+        p.cut.boundary = boundary;
+        p.cut.overlap = overlap;
+        p.cut.min_chunk = 0;
+        plan::resolve(&p, &info, &counter, "faq").unwrap()
+    };
+    let aggs = [ChunkPooling::Mean, ChunkPooling::Best, ChunkPooling::Sum];
+    let sets = [
+        (mk(256, Boundary::Head, 0), vec![ChunkPooling::First]),
+        (mk(128, Boundary::Token, 32), aggs.to_vec()),
+        (mk(128, Boundary::Sentence, 0), aggs.to_vec()),
+        (mk(256, Boundary::Paragraph, 0), aggs.to_vec()),
+    ];
+    let mut by_questions = Vec::new();
+    let mut by_probes = Vec::new();
+    let mut evals = Vec::new();
+    for (plan, aggs) in sets {
+        let chunks = engine::cut_corpus(&corpus, &plan, &counter);
+        let (vectors, _) =
+            engine::embed_chunks(&corpus, &chunks, &plan, &embedder, None, &mut |_, _| {}).unwrap();
+        // No probe sentence survives in the holed chunks of its own document.
+        for p in &set.probes {
+            let t = &corpus.docs[p.doc].text;
+            let sentence = t[p.bytes.clone()].trim();
+            for c in &chunks[p.doc] {
+                if let Some(h) = probes::holed(t, &c.byte_range, &p.bytes) {
+                    assert!(!h.contains(sentence), "sentence left in a holed chunk");
+                }
+            }
+        }
+        for agg in aggs {
+            let mut rp = plan.clone();
+            rp.profile.pool.chunks = agg;
+            let name = format!(
+                "{}-{}-{}",
+                plan.profile.cut.boundary.name(),
+                plan.window,
+                agg.name()
+            );
+            let q = engine::score_plan(
+                &corpus,
+                &refs,
+                &ref_vectors,
+                &rp,
+                chunks.clone(),
+                &vectors,
+                0,
+            );
+            let pe = probes::score(
+                &corpus,
+                &set,
+                &probe_vectors,
+                &rp,
+                &chunks,
+                &vectors,
+                &embedder,
+                None,
+            )
+            .unwrap();
+            let band = |d: Depth| pe.bands.iter().find(|b| b.0 == d).unwrap().1.mrr_at_10;
+            println!(
+                "{name:<22} questions MRR@10 {:.3}   probes MRR@10 {:.3} (first {:.3}, middle {:.3}, last {:.3}; chunk {:.3})",
+                q.summary.mrr_at_10,
+                pe.summary.mrr_at_10,
+                band(Depth::First),
+                band(Depth::Middle),
+                band(Depth::Last),
+                pe.chunk_hits
+            );
+            by_questions.push(q.summary.mrr_at_10);
+            by_probes.push(pe.summary.mrr_at_10);
+            evals.push((name, pe));
+        }
+    }
+    assert_eq!(evals.len(), 10);
+    let tau = kendall_tau_b(&by_questions, &by_probes);
+    println!("Kendall's tau-b between the plan rankings by questions and by probes: {tau:.3}");
+    let pearson = {
+        let n = by_questions.len() as f64;
+        let (mx, my) = (
+            by_questions.iter().sum::<f64>() / n,
+            by_probes.iter().sum::<f64>() / n,
+        );
+        let cov: f64 = by_questions
+            .iter()
+            .zip(&by_probes)
+            .map(|(x, y)| (x - mx) * (y - my))
+            .sum();
+        let vx: f64 = by_questions.iter().map(|x| (x - mx).powi(2)).sum();
+        let vy: f64 = by_probes.iter().map(|y| (y - my).powi(2)).sum();
+        cov / (vx * vy).sqrt()
+    };
+    println!("Pearson correlation of the plans' MRR@10 by questions and by probes: {pearson:.3}");
+    let band = |i: usize, d: Depth| {
+        evals[i]
+            .1
+            .bands
+            .iter()
+            .find(|b| b.0 == d)
+            .unwrap()
+            .1
+            .mrr_at_10
+    };
+    let head_first = band(0, Depth::First);
+    let head_last = band(0, Depth::Last);
+    let best_last = (1..evals.len())
+        .map(|i| band(i, Depth::Last))
+        .fold(0.0, f64::max);
+    assert!(
+        head_last + 0.1 <= head_first,
+        "truncation: last tenth {head_last:.3} vs first window {head_first:.3}"
+    );
+    assert!(
+        head_last + 0.1 <= best_last,
+        "truncation's last tenth {head_last:.3} vs the best chunked plan's {best_last:.3}"
+    );
+}

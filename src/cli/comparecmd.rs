@@ -15,15 +15,18 @@ use kerf::profile::{Boundary, Profile};
 use kerf::segment::line_of;
 
 use super::embed::EncoderArgs;
+use super::probing::{self, ProbeArgs};
 use super::{load_plan, report_notices, InputArgs, Loaded, PlanArgs};
+use kerf::compare::probes::{self, ProbeEval};
 
 #[derive(Args)]
 pub struct CompareArgs {
     #[command(flatten)]
     pub input: InputArgs,
-    /// Reference texts: kerf TOML, or a TREC queries file (with --qrels).
+    /// Reference texts: kerf TOML, or a TREC queries file (with --qrels). Without it, plans
+    /// are judged by self-retrieval (see --probes).
     #[arg(long)]
-    pub refs: PathBuf,
+    pub refs: Option<PathBuf>,
     /// TREC qrels beside a queries file given as --refs.
     #[arg(long)]
     pub qrels: Option<PathBuf>,
@@ -43,12 +46,14 @@ pub struct CompareArgs {
     #[arg(long)]
     pub json: bool,
     /// One CSV row per reference, plan and listed document.
-    #[arg(long, conflicts_with = "json")]
+    #[arg(long, conflicts_with = "json", requires = "refs")]
     pub csv: bool,
     /// Write a self-contained HTML handout: plans, chart, rankings per reference, census,
     /// the recommended profile. It quotes document text: share it as you would the documents.
-    #[arg(long, value_name = "FILE.html")]
+    #[arg(long, value_name = "FILE.html", requires = "refs")]
     pub handout: Option<PathBuf>,
+    #[command(flatten)]
+    pub probing: ProbeArgs,
     #[command(flatten)]
     pub encoder: EncoderArgs,
 }
@@ -163,6 +168,7 @@ impl<'a> Encoders<'a> {
 struct Evaluated {
     eval: PlanEval,
     tau_vs_first: f64,
+    probes: Option<ProbeEval>,
 }
 
 fn csv_field(s: &str) -> String {
@@ -175,9 +181,18 @@ fn csv_field(s: &str) -> String {
 
 pub fn run(a: CompareArgs) -> Result<()> {
     let plans = load_plans(&a.profiles, a.model.clone(), !a.no_baseline)?;
-    let references: Vec<Reference> = refs::load(&a.refs, a.qrels.as_deref())?;
+    let references: Vec<Reference> = match &a.refs {
+        Some(p) => refs::load(p, a.qrels.as_deref())?,
+        None => Vec::new(),
+    };
     let corpus = read_corpus(&a.input, &plans[0])?;
-    refs::check_known(&references, &corpus.ids(), &a.refs.display().to_string())?;
+    if let Some(p) = &a.refs {
+        refs::check_known(&references, &corpus.ids(), &p.display().to_string())?;
+    }
+    let probe_set = match a.probing.wanted(a.refs.is_some()) {
+        Some(n) => Some(a.probing.draw(&corpus, n, plans[0].info.default_window())?),
+        None => None,
+    };
     let cache = a.encoder.open_cache()?;
     let mut encoders = Encoders::new(&a.encoder);
     let mut evals: Vec<Evaluated> = Vec::new();
@@ -185,12 +200,11 @@ pub fn run(a: CompareArgs) -> Result<()> {
         let e = encoders.get(l)?;
         let rv = engine::embed_refs(e.as_ref(), cache.as_ref(), &references)?;
         let bar = super::embed::progress_bar(0, a.encoder.quiet, &l.plan.profile.name);
-        let eval = engine::evaluate_plan(
+        let chunks = engine::cut_corpus(&corpus, &l.plan, &l.counter);
+        let (vectors, embedded) = engine::embed_chunks(
             &corpus,
-            &references,
-            &rv,
+            &chunks,
             &l.plan,
-            &l.counter,
             e.as_ref(),
             cache.as_ref(),
             &mut |d, t| {
@@ -203,6 +217,35 @@ pub fn run(a: CompareArgs) -> Result<()> {
         if let Some(b) = bar {
             b.finish_and_clear();
         }
+        let eval = engine::score_plan(
+            &corpus,
+            &references,
+            &rv,
+            &l.plan,
+            chunks,
+            &vectors,
+            embedded,
+        );
+        let probe_eval = match &probe_set {
+            Some(set) => {
+                let pv = engine::embed_refs(
+                    e.as_ref(),
+                    cache.as_ref(),
+                    &probes::references(&corpus, set, &a.probing.probe_prefix),
+                )?;
+                Some(probes::score(
+                    &corpus,
+                    set,
+                    &pv,
+                    &l.plan,
+                    &eval.chunks,
+                    &vectors,
+                    e.as_ref(),
+                    cache.as_ref(),
+                )?)
+            }
+            None => None,
+        };
         let tau = match evals.first() {
             Some(base) => {
                 let taus: Vec<f64> = eval
@@ -218,6 +261,7 @@ pub fn run(a: CompareArgs) -> Result<()> {
         evals.push(Evaluated {
             eval,
             tau_vs_first: tau,
+            probes: probe_eval,
         });
     }
     if let Some(path) = &a.handout {
@@ -274,15 +318,18 @@ pub fn run(a: CompareArgs) -> Result<()> {
                     "chunks": e.chunks.iter().map(Vec::len).sum::<usize>(),
                     "input_tokens": e.input_tokens,
                     "references": per_ref,
+                    "self_retrieval": ev.probes,
                 })
             })
             .collect();
         writeln!(
             out,
             "{}",
-            serde_json::to_string_pretty(
-                &serde_json::json!({ "baseline": !a.no_baseline, "plans": plans_json })
-            )?
+            serde_json::to_string_pretty(&serde_json::json!({
+                "baseline": !a.no_baseline,
+                "probes": probe_set.as_ref().map(probing::set_json),
+                "plans": plans_json,
+            }))?
         )?;
     } else if a.csv {
         writeln!(out, "plan,reference,rank,doc,score,baseline_rank,score_change,best_chunk,line_start,line_end,expected")?;
@@ -362,36 +409,57 @@ pub fn run(a: CompareArgs) -> Result<()> {
             }
             writeln!(out)?;
         }
-        writeln!(
-            out,
-            "{:<w$}  {:>7} {:>7} {:>6} {:>6} {:>6} {:>9} {:>7} {:>6} {:>9}",
-            "plan", "MRR@10", "nDCG@10", "R@1", "R@5", "R@10", "expected", "shift", "tau", "tokens"
-        )?;
-        for ev in &evals {
-            let e = &ev.eval;
-            let s = &e.summary;
+        if !references.is_empty() {
             writeln!(
                 out,
-                "{:<w$}  {:>7.3} {:>7.3} {:>6.3} {:>6.3} {:>6.3} {:>9} {:>7} {:>6.3} {:>9}",
-                e.plan.profile.name,
-                s.mrr_at_10,
-                s.ndcg_at_10,
-                s.recall_at_1,
-                s.recall_at_5,
-                s.recall_at_10,
-                e.mean_expected.map_or("—".into(), |x| format!("{x:.3}")),
-                e.mean_expected
-                    .zip(base.mean_expected)
-                    .map_or("—".into(), |(x, y)| format!("{:+.3}", x - y)),
-                ev.tau_vs_first,
-                super::survey::thousands(e.input_tokens)
+                "{:<w$}  {:>7} {:>7} {:>6} {:>6} {:>6} {:>9} {:>7} {:>6} {:>9}",
+                "plan",
+                "MRR@10",
+                "nDCG@10",
+                "R@1",
+                "R@5",
+                "R@10",
+                "expected",
+                "shift",
+                "tau",
+                "tokens"
+            )?;
+            for ev in &evals {
+                let e = &ev.eval;
+                let s = &e.summary;
+                writeln!(
+                    out,
+                    "{:<w$}  {:>7.3} {:>7.3} {:>6.3} {:>6.3} {:>6.3} {:>9} {:>7} {:>6.3} {:>9}",
+                    e.plan.profile.name,
+                    s.mrr_at_10,
+                    s.ndcg_at_10,
+                    s.recall_at_1,
+                    s.recall_at_5,
+                    s.recall_at_10,
+                    e.mean_expected.map_or("—".into(), |x| format!("{x:.3}")),
+                    e.mean_expected
+                        .zip(base.mean_expected)
+                        .map_or("—".into(), |(x, y)| format!("{:+.3}", x - y)),
+                    ev.tau_vs_first,
+                    super::survey::thousands(e.input_tokens)
+                )?;
+            }
+            writeln!(
+                out,
+                "({} references with expectations; shift and tau against {})",
+                evals[0].eval.summary.queries, base.plan.profile.name
             )?;
         }
-        writeln!(
-            out,
-            "({} references with expectations; shift and tau against {})",
-            evals[0].eval.summary.queries, base.plan.profile.name
-        )?;
+        if probe_set.is_some() {
+            if !references.is_empty() {
+                writeln!(out)?;
+            }
+            let rows: Vec<(String, &ProbeEval)> = evals
+                .iter()
+                .filter_map(|ev| Some((ev.eval.plan.profile.name.clone(), ev.probes.as_ref()?)))
+                .collect();
+            probing::write_table(&mut out, &rows)?;
+        }
     }
     out.flush().context("writing the comparison")?;
     Ok(())

@@ -17,6 +17,7 @@ mod cut;
 mod embed;
 mod explore;
 mod modelcmd;
+mod probing;
 mod profilecmd;
 mod survey;
 mod sweepcmd;

@@ -19,7 +19,9 @@ use kerf::profile::Profile;
 
 use super::comparecmd::{baseline_profile, read_corpus, Encoders};
 use super::embed::EncoderArgs;
+use super::probing::{self, ProbeArgs};
 use super::{load_plan, InputArgs, PlanArgs};
+use kerf::compare::probes::{self, ProbeEval};
 
 #[derive(Clone, Copy, ValueEnum)]
 pub enum Metric {
@@ -47,9 +49,10 @@ pub enum ChartCost {
 pub struct SweepArgs {
     #[command(flatten)]
     pub input: InputArgs,
-    /// Reference texts: kerf TOML, or a TREC queries file (with --qrels).
+    /// Reference texts: kerf TOML, or a TREC queries file (with --qrels). Without it, plans
+    /// are judged by self-retrieval (see --probes).
     #[arg(long)]
-    pub refs: PathBuf,
+    pub refs: Option<PathBuf>,
     /// TREC qrels beside a queries file given as --refs.
     #[arg(long)]
     pub qrels: Option<PathBuf>,
@@ -85,7 +88,7 @@ pub struct SweepArgs {
     pub chart: Option<PathBuf>,
     /// Write a self-contained HTML handout: plans, chart, rankings per reference, census,
     /// the recommended profile. It quotes document text: share it as you would the documents.
-    #[arg(long, value_name = "FILE.html")]
+    #[arg(long, value_name = "FILE.html", requires = "refs")]
     pub handout: Option<PathBuf>,
     /// The chart's cost axis: encoder-input tokens, or estimated seconds to embed.
     #[arg(long, value_enum, default_value = "tokens")]
@@ -93,6 +96,8 @@ pub struct SweepArgs {
     /// Machine-readable output (JSON).
     #[arg(long)]
     pub json: bool,
+    #[command(flatten)]
+    pub probing: ProbeArgs,
     #[command(flatten)]
     pub encoder: EncoderArgs,
 }
@@ -104,6 +109,8 @@ struct Row {
     quality: f64,
     summary: kerf::compare::metrics::Summary,
     cost: Cost,
+    /// The plan judged by self-retrieval, when probes were drawn.
+    probes: Option<ProbeEval>,
 }
 
 /// The chart's input from the sweep's rows: cost on the chosen axis, quality on the metric.
@@ -175,9 +182,14 @@ pub fn run(a: SweepArgs) -> Result<()> {
             anyhow::bail!("{question}; raise --max-plans or pass --yes");
         }
     }
-    let references: Vec<Reference> = refs::load(&a.refs, a.qrels.as_deref())?;
+    let references: Vec<Reference> = match &a.refs {
+        Some(p) => refs::load(p, a.qrels.as_deref())?,
+        None => Vec::new(),
+    };
     let full = read_corpus(&a.input, &base_loaded)?;
-    refs::check_known(&references, &full.ids(), &a.refs.display().to_string())?;
+    if let Some(p) = &a.refs {
+        refs::check_known(&references, &full.ids(), &p.display().to_string())?;
+    }
     let total_tokens = full.content_tokens();
     // Sample: every expected document plus evenly spread others by length.
     let (corpus, scale) = match a.sample {
@@ -217,6 +229,13 @@ pub fn run(a: SweepArgs) -> Result<()> {
     let mut measured: Vec<(Precision, f64, usize)> = Vec::new();
     let bar = super::embed::progress_bar(groups.len() + 1, a.encoder.quiet, "sweep");
     let mut interrupted = false;
+    let probe_set = match a.probing.wanted(a.refs.is_some()) {
+        Some(n) => Some(
+            a.probing
+                .draw(&corpus, n, base_loaded.info.default_window())?,
+        ),
+        None => None,
+    };
     // The truncation baseline is measured after the grid, as one more chunk set: the chart
     // draws it as the reference line and the handout measures rank moves against it.
     let base_index = plans.len();
@@ -243,6 +262,14 @@ pub fn run(a: SweepArgs) -> Result<()> {
         let resolved = plan::resolve(first, &l.info, &l.counter, &first.name)?;
         let e = encoders.get(&l)?;
         let rv = engine::embed_refs(e.as_ref(), cache.as_ref(), &references)?;
+        let pv = match &probe_set {
+            Some(set) => engine::embed_refs(
+                e.as_ref(),
+                cache.as_ref(),
+                &probes::references(&corpus, set, &a.probing.probe_prefix),
+            )?,
+            None => Vec::new(),
+        };
         let chunks = engine::cut_corpus(&corpus, &resolved, &l.counter);
         let before = e.stats();
         let t0 = Instant::now();
@@ -284,10 +311,28 @@ pub fn run(a: SweepArgs) -> Result<()> {
             if pi != base_index {
                 scored += n_chunks;
             }
+            let probe_eval = match &probe_set {
+                Some(set) => Some(probes::score(
+                    &corpus,
+                    set,
+                    &pv,
+                    &rp,
+                    &ev.chunks,
+                    &vectors,
+                    e.as_ref(),
+                    cache.as_ref(),
+                )?),
+                None => None,
+            };
+            // Without references, the plan is judged by its probes alone.
+            let summary = match (&probe_eval, references.is_empty()) {
+                (Some(pe), true) => pe.summary.clone(),
+                _ => ev.summary.clone(),
+            };
             let quality = match a.metric {
-                Metric::Ndcg => ev.summary.ndcg_at_10,
-                Metric::Mrr => ev.summary.mrr_at_10,
-                Metric::Recall => ev.summary.recall_at_10,
+                Metric::Ndcg => summary.ndcg_at_10,
+                Metric::Mrr => summary.mrr_at_10,
+                Metric::Recall => summary.recall_at_10,
             };
             let dim = e.dim();
             let cost = Cost {
@@ -303,8 +348,9 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 index: pi,
                 profile: plans[pi].clone(),
                 quality,
-                summary: ev.summary.clone(),
+                summary,
                 cost,
+                probes: probe_eval,
             });
             if a.handout.is_some() {
                 evals.push((pi, ev));
@@ -452,7 +498,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
         let plans_json: Vec<serde_json::Value> = rows
             .iter()
             .enumerate()
-            .map(|(i, r)| serde_json::json!({ "name": r.profile.name, "profile": r.profile, "quality": r.quality, "summary": r.summary, "cost": r.cost, "pareto": front.contains(&i) }))
+            .map(|(i, r)| serde_json::json!({ "name": r.profile.name, "profile": r.profile, "quality": r.quality, "summary": r.summary, "cost": r.cost, "pareto": front.contains(&i), "self_retrieval": r.probes }))
             .collect();
         writeln!(
             out,
@@ -467,7 +513,9 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 "tokens_per_second": rates.iter().map(|(p, r)| (p.name(), *r)).collect::<std::collections::BTreeMap<_, _>>(),
                 "sampled": scale != 1.0,
                 "interrupted": interrupted,
-                "baseline": baseline_row.as_ref().map(|b| serde_json::json!({ "name": b.profile.name, "quality": b.quality, "summary": b.summary, "cost": b.cost })),
+                "baseline": baseline_row.as_ref().map(|b| serde_json::json!({ "name": b.profile.name, "quality": b.quality, "summary": b.summary, "cost": b.cost, "self_retrieval": b.probes })),
+                "judged_by": if references.is_empty() { "self-retrieval" } else { "references" },
+                "probes": probe_set.as_ref().map(probing::set_json),
             }))?
         )?;
     } else {
@@ -480,7 +528,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
         for (i, r) in rows.iter().enumerate() {
             writeln!(
                 out,
-                "{} {:<w$} {:>8.3} {:>7.3} {:>7.3} {:>8} {:>10} {:>7.2}x {:>7.0}s {:>9.1}M",
+                "{} {:<w$} {:>8.3} {:>7.3} {:>7.3} {:>8} {:>10} {:>7.2}x {:>8} {:>9.1}M",
                 if front.contains(&i) { "◆" } else { " " },
                 r.profile.name,
                 r.quality,
@@ -489,7 +537,11 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 r.cost.chunks,
                 super::survey::thousands(r.cost.input_tokens),
                 r.cost.overhead,
-                r.cost.embed_seconds,
+                if r.cost.embed_seconds.is_finite() {
+                    format!("{:.0}s", r.cost.embed_seconds)
+                } else {
+                    "—".to_string() // every vector came from the cache: no rate measured
+                },
                 r.cost.storage_f32_bytes as f64 / 1e6
             )?;
         }
@@ -511,6 +563,18 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 out,
                 "costs extrapolated from a sample to the whole corpus (×{scale:.2})"
             )?;
+        }
+        if probe_set.is_some() {
+            if references.is_empty() {
+                writeln!(out, "quality: {metric} of self-retrieval (no --refs)")?;
+            }
+            writeln!(out)?;
+            let table: Vec<(String, &ProbeEval)> = rows
+                .iter()
+                .chain(baseline_row.as_ref())
+                .filter_map(|r| Some((r.profile.name.clone(), r.probes.as_ref()?)))
+                .collect();
+            probing::write_table(&mut out, &table)?;
         }
         if interrupted {
             writeln!(
