@@ -82,9 +82,11 @@ fn column<'a, T: 'static>(b: &'a arrow_array::RecordBatch, name: &str) -> &'a T 
 
 /// A chunk: byte range, tokens, vector.
 type Chunk = ([u64; 2], u64, Vec<f32>);
+/// Chunks by (document, index).
+type Chunks = BTreeMap<(String, u64), Chunk>;
 
 /// Chunks and document vectors of kerf's own Parquet tables.
-fn kerf_tables(parts: &[PathBuf]) -> (BTreeMap<(String, u64), Chunk>, BTreeMap<String, Vec<f32>>) {
+fn kerf_tables(parts: &[PathBuf]) -> (Chunks, BTreeMap<String, Vec<f32>>) {
     let mut chunks = BTreeMap::new();
     let mut docs = BTreeMap::new();
     for part in parts {
@@ -137,13 +139,7 @@ fn list_vector(list: &ListArray, r: usize) -> Option<Vec<f32>> {
 }
 
 /// What Spark wrote: chunks (no key twice), and every document with its vector if any.
-#[allow(clippy::type_complexity)]
-fn spark_tables(
-    out: &Path,
-) -> (
-    BTreeMap<(String, u64), Chunk>,
-    BTreeMap<String, (i32, Option<Vec<f32>>)>,
-) {
+fn spark_tables(out: &Path) -> (Chunks, BTreeMap<String, (i32, Option<Vec<f32>>)>) {
     let mut chunks = BTreeMap::new();
     let mut docs = BTreeMap::new();
     for f in files_under(&out.join("kind=chunk"), ".parquet") {
