@@ -84,6 +84,8 @@ fn column<'a, T: 'static>(b: &'a arrow_array::RecordBatch, name: &str) -> &'a T 
 type Chunk = ([u64; 2], u64, Vec<f32>);
 /// Chunks by (document, index).
 type Chunks = BTreeMap<(String, u64), Chunk>;
+/// Documents as Spark wrote them: chunk count and vector (none for a document without chunks).
+type SparkDocs = BTreeMap<String, (i32, Option<Vec<f32>>)>;
 
 /// Chunks and document vectors of kerf's own Parquet tables.
 fn kerf_tables(parts: &[PathBuf]) -> (Chunks, BTreeMap<String, Vec<f32>>) {
@@ -139,7 +141,7 @@ fn list_vector(list: &ListArray, r: usize) -> Option<Vec<f32>> {
 }
 
 /// What Spark wrote: chunks (no key twice), and every document with its vector if any.
-fn spark_tables(out: &Path) -> (Chunks, BTreeMap<String, (i32, Option<Vec<f32>>)>) {
+fn spark_tables(out: &Path) -> (Chunks, SparkDocs) {
     let mut chunks = BTreeMap::new();
     let mut docs = BTreeMap::new();
     for f in files_under(&out.join("kind=chunk"), ".parquet") {
