@@ -5,8 +5,10 @@ use std::path::PathBuf;
 use anyhow::{Context, Result};
 use clap::{Args, ValueEnum};
 
+use kerf::corpus::DocStream;
 use kerf::job::{EmbedJob, JobSettings};
-use kerf::store::{self, FolderSink};
+use kerf::shard::{Shard, SHARD_RULE};
+use kerf::store::{self, FolderSink, LineSink};
 
 use super::{load_plan, report_notices, InputArgs, PlanArgs};
 
@@ -74,6 +76,15 @@ impl EncoderArgs {
     }
 }
 
+/// How `--relay` writes vectors in its lines.
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum VectorText {
+    /// A JSON array of numbers, field `vector`.
+    Array,
+    /// Base64 of the little-endian f32 bytes, field `vector_b64` (exact, a third of the size).
+    Base64,
+}
+
 #[derive(Args)]
 pub struct EmbedArgs {
     #[command(flatten)]
@@ -82,19 +93,42 @@ pub struct EmbedArgs {
     pub plan: PlanArgs,
     #[command(flatten)]
     pub encoder: EncoderArgs,
-    /// Output folder (written whole, then moved into place; manifest.json last).
-    #[arg(long, short = 'o')]
-    pub out: PathBuf,
+    /// Output folder (written whole, then moved into place; manifest.json last). With --shard
+    /// I/N the shard's folder is OUT/shard=I, so N shards make one partitioned dataset.
+    #[arg(
+        long,
+        short = 'o',
+        required_unless_present = "relay",
+        conflicts_with = "relay"
+    )]
+    pub out: Option<PathBuf>,
     /// Replace an existing output folder.
     #[arg(long)]
     pub force: bool,
     /// Vector file format.
-    #[arg(long, value_enum, default_value = "npy")]
+    #[arg(long, value_enum, default_value = "npy", conflicts_with = "relay")]
     pub format: Format,
     /// Encoder-input tokens per block: the job cuts, embeds and writes a block at a time, so
     /// memory holds one block whatever the corpus size.
     #[arg(long, default_value_t = JobSettings::default().block_tokens)]
     pub block_tokens: usize,
+    /// Run as a stage of another pipeline: read JSONL documents (`-` is standard input) and
+    /// write one JSON line per chunk and per document to standard output, flushed after every
+    /// block, ending with a line of kind "end". Ids are not checked for repeats, so memory stays
+    /// bounded on input of any length.
+    #[arg(long)]
+    pub relay: bool,
+    /// With --relay: how vectors are written in the lines.
+    #[arg(long, value_enum, default_value = "array", requires = "relay")]
+    pub vector_text: VectorText,
+    /// Embed only the documents of shard I of N (from 0): those whose id's SHA-256, first 8
+    /// bytes big-endian, is I modulo N. N runs with 0/N .. N-1/N cover the corpus once.
+    #[arg(long, value_name = "I/N", value_parser = parse_shard)]
+    pub shard: Option<Shard>,
+}
+
+fn parse_shard(s: &str) -> Result<Shard, String> {
+    Shard::parse(s).map_err(|e| e.to_string())
 }
 
 /// A progress bar on a terminal, nothing otherwise; with a total of 0 (a stream of unknown
@@ -143,11 +177,16 @@ pub fn run(a: EmbedArgs) -> Result<()> {
     if a.plan.profile.is_none() {
         anyhow::bail!("kerf embed needs --profile FILE (see profiles/ for ready-made plans)");
     }
-    if a.out.exists() && !a.force {
-        return Err(kerf::store::StoreError::Exists {
-            path: a.out.clone(),
+    let shard = a.shard.unwrap_or(Shard::WHOLE);
+    // With --shard the output is one part of a partitioned folder: OUT/shard=I.
+    let target = a.out.as_ref().map(|out| match a.shard {
+        Some(s) => out.join(s.folder_name()),
+        None => out.clone(),
+    });
+    if let Some(t) = &target {
+        if t.exists() && !a.force {
+            return Err(kerf::store::StoreError::Exists { path: t.clone() }.into());
         }
-        .into());
     }
     let loaded = load_plan(&a.plan, |_| unreachable!("a profile was given"))?;
     let embedder = super::load_embedder(&loaded, &a.encoder)?;
@@ -162,43 +201,84 @@ pub fn run(a: EmbedArgs) -> Result<()> {
             batch_tokens: a.encoder.batch_tokens,
         },
     };
-    let format = match a.format {
-        Format::Npy => store::Format::Npy,
-        Format::Parquet => store::Format::Parquet,
-    };
     let stop = stop_flag()?;
-    let mut sink = FolderSink::create(&a.out, a.force, format, embedder.dim())?;
-    let mut stream = a.input.open()?;
-    let bar = progress_bar(0, a.encoder.quiet, "embedding");
-    let result = job.run_until(
-        stream.by_ref(),
-        &mut sink,
-        &mut |p| {
-            if let Some(b) = &bar {
-                b.set_position(p.tokens as u64);
-                b.set_message(format!(
-                    "{} documents · {} chunks · {} embedded, {} from cache",
-                    p.documents, p.chunks, p.cache.embedded, p.cache.cached
-                ));
-            }
-        },
-        &stop,
-    );
-    if let Some(b) = bar {
-        b.finish_and_clear();
+    let mut options = a.input.options();
+    if a.relay {
+        // A stage reads documents as lines, and its input's keys are the caller's to keep
+        // unique: remembering every id would make memory grow with the input.
+        options.stdin_jsonl = true;
+        options.check_unique_ids = false;
     }
-    // On any error the sink is dropped unfinished: its partial folder is removed and nothing
-    // appears under the output's name.
-    let report = result?;
+    let mut stream = DocStream::open(&a.input.paths, options)?;
+    let bar = progress_bar(0, a.encoder.quiet, "embedding");
+    let mut show = |p: &kerf::job::JobProgress| {
+        if let Some(b) = &bar {
+            b.set_position(p.tokens as u64);
+            b.set_message(format!(
+                "{} documents · {} chunks · {} embedded, {} from cache",
+                p.documents, p.chunks, p.cache.embedded, p.cache.cached
+            ));
+        }
+    };
+    let docs = shard.keep(stream.by_ref());
+    let (report, written_to) = match target {
+        None => {
+            let vectors = match a.vector_text {
+                VectorText::Array => store::VectorText::Array,
+                VectorText::Base64 => store::VectorText::Base64,
+            };
+            let stdout = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+            let mut sink = LineSink::new(stdout, "<stdout>", vectors, embedder.dim());
+            let result = job.run_until(docs, &mut sink, &mut show, &stop);
+            if let Some(b) = &bar {
+                b.finish_and_clear();
+            }
+            // On an error the end line is never written, so a reader knows the stream is cut.
+            let report = result?;
+            sink.finish()?;
+            (report, "<stdout>".to_string())
+        }
+        Some(target) => {
+            let format = match a.format {
+                Format::Npy => store::Format::Npy,
+                Format::Parquet => store::Format::Parquet,
+            };
+            if let Some(parent) = target.parent() {
+                std::fs::create_dir_all(parent)
+                    .with_context(|| format!("creating {}", parent.display()))?;
+            }
+            let mut sink = FolderSink::create(&target, a.force, format, embedder.dim())?;
+            let result = job.run_until(docs, &mut sink, &mut show, &stop);
+            if let Some(b) = &bar {
+                b.finish_and_clear();
+            }
+            // On any error the sink is dropped unfinished: its partial folder is removed and
+            // nothing appears under the output's name.
+            let report = result?;
+            let mut manifest = job.manifest(&loaded.info.dir, &report);
+            if a.shard.is_some() {
+                manifest.insert(
+                    "shard".into(),
+                    serde_json::json!({
+                        "index": shard.index,
+                        "count": shard.count,
+                        "rule": SHARD_RULE,
+                    }),
+                );
+            }
+            sink.finish(manifest)?;
+            (report, target.display().to_string())
+        }
+    };
     report_notices(&stream.notices);
-    sink.finish(job.manifest(&loaded.info.dir, &report))?;
     let mut err = std::io::stderr().lock();
     writeln!(
         err,
-        "kerf: {} chunks of {} documents → {} ({} embedded, {} from cache, {} tokens through the encoder in {:.1} s)",
+        "kerf: {} chunks of {} documents{} → {} ({} embedded, {} from cache, {} tokens through the encoder in {:.1} s)",
         report.chunks,
         report.documents,
-        a.out.display(),
+        a.shard.map(|s| format!(" (shard {s})")).unwrap_or_default(),
+        written_to,
         report.cache.embedded,
         report.cache.cached,
         report.cache.embedded_tokens,

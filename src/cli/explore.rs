@@ -58,6 +58,7 @@ fn read_documents(input: &InputArgs) -> Result<(Vec<Document>, Vec<Notice>)> {
             lossy: true,
             stdin_jsonl: input.stdin_jsonl,
             skip_broken_lines: input.skip_broken_lines,
+            ..InputOptions::default()
         },
     )?;
     let mut docs = Vec::new();

@@ -79,17 +79,20 @@ pub struct InputArgs {
 }
 
 impl InputArgs {
+    /// The reading options these flags ask for.
+    fn options(&self) -> InputOptions {
+        InputOptions {
+            text_field: self.text_field.clone(),
+            id_field: self.id_field.clone(),
+            lossy: self.lossy,
+            stdin_jsonl: self.stdin_jsonl,
+            skip_broken_lines: self.skip_broken_lines,
+            ..InputOptions::default()
+        }
+    }
+
     fn open(&self) -> Result<DocStream> {
-        Ok(DocStream::open(
-            &self.paths,
-            InputOptions {
-                text_field: self.text_field.clone(),
-                id_field: self.id_field.clone(),
-                lossy: self.lossy,
-                stdin_jsonl: self.stdin_jsonl,
-                skip_broken_lines: self.skip_broken_lines,
-            },
-        )?)
+        Ok(DocStream::open(&self.paths, self.options())?)
     }
 }
 

@@ -97,3 +97,61 @@ pub fn faq_chapters(dir: &Path, n: usize) -> usize {
     }
     written
 }
+
+/// A corpus of `n` short documents as JSONL (`id`, `text`), made from a fixed word list by a
+/// fixed rule, so every run gets the same corpus: one to three sentences each, some with two
+/// paragraphs, and every 97th empty (a document with no chunks).
+pub fn short_documents(n: usize) -> String {
+    const WORDS: [&str; 24] = [
+        "boiler",
+        "signal",
+        "timetable",
+        "parapet",
+        "crossing",
+        "platform",
+        "tender",
+        "sleeper",
+        "gauge",
+        "whistle",
+        "ballast",
+        "carriage",
+        "inspection",
+        "summer",
+        "repair",
+        "lamp",
+        "station",
+        "valve",
+        "bridge",
+        "curve",
+        "wagon",
+        "fare",
+        "brake",
+        "cutting",
+    ];
+    let mut out = String::new();
+    for i in 0..n {
+        let mut text = String::new();
+        if i % 97 != 5 {
+            let sentences = 1 + i % 3;
+            for s in 0..sentences {
+                if s == 2 && i % 2 == 0 {
+                    text.push_str("\n\n");
+                } else if s > 0 {
+                    text.push(' ');
+                }
+                let w = |k: usize| WORDS[(i * 7 + s * 5 + k * 11) % WORDS.len()];
+                text.push_str(&format!(
+                    "The {} by the {} was checked {} times before the {} ran.",
+                    w(0),
+                    w(1),
+                    i % 13 + s,
+                    w(2)
+                ));
+            }
+        }
+        let line = serde_json::json!({ "id": format!("doc-{i:05}"), "text": text });
+        out.push_str(&line.to_string());
+        out.push('\n');
+    }
+    out
+}

@@ -97,6 +97,10 @@ pub struct InputOptions {
     /// A JSONL line that is not a usable document (bad JSON, bad UTF-8, no text field) is left
     /// out with a [`Notice`] naming its line, instead of stopping the stream.
     pub skip_broken_lines: bool,
+    /// Refuse a document whose id came before ([`CorpusError::DuplicateId`]). This keeps every
+    /// id seen, so memory grows with the corpus; a stage in someone else's pipeline, whose
+    /// table owns its keys, turns it off to run in bounded memory on input of any length.
+    pub check_unique_ids: bool,
 }
 
 impl Default for InputOptions {
@@ -107,6 +111,7 @@ impl Default for InputOptions {
             lossy: false,
             stdin_jsonl: false,
             skip_broken_lines: false,
+            check_unique_ids: true,
         }
     }
 }
@@ -402,7 +407,7 @@ impl Iterator for DocStream {
 impl DocStream {
     fn check(&mut self, item: Result<Document, CorpusError>) -> Result<Document, CorpusError> {
         let r = item.and_then(|d| {
-            if !self.seen.insert(d.id.clone()) {
+            if self.opts.check_unique_ids && !self.seen.insert(d.id.clone()) {
                 return Err(CorpusError::DuplicateId {
                     id: d.id,
                     path: PathBuf::from(d.origin),

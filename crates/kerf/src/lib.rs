@@ -18,6 +18,7 @@ pub mod pool;
 pub mod profile;
 pub mod records;
 pub mod segment;
+pub mod shard;
 pub mod split;
 pub mod store;
 pub mod survey;

@@ -4,10 +4,13 @@
 //! [`ChunkSink`] in input order, and tells it when a block of documents is complete. A sink
 //! decides how to keep them: [`FolderSink`] writes an output folder (chunks.jsonl with NumPy
 //! .npy matrices or Parquet tables, and a manifest) that appears under its final name only when
-//! whole; [`CollectSink`] keeps everything in memory for tests and small corpora. Nothing here
-//! holds more than one block: vectors stream to disk as they come.
+//! whole; [`LineSink`] writes a JSON line per chunk and per document to any writer (kerf as a
+//! stage of another pipeline, on standard output); [`CollectSink`] keeps everything in memory
+//! for tests and small corpora. Nothing here holds more than one block: vectors stream to disk
+//! or to the writer as they come.
 mod atomic;
 mod folder;
+mod lines;
 pub mod npy;
 pub mod parquet;
 
@@ -15,6 +18,7 @@ use std::path::PathBuf;
 
 pub use atomic::{write_atomic, AtomicFile};
 pub use folder::{FolderSink, Format};
+pub use lines::{base64, vector_base64, LineCounts, LineSink, VectorText};
 pub use npy::{npy_f32, read_npy_f32, sha256_hex};
 
 use crate::records::ChunkRecord;
