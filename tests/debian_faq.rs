@@ -69,24 +69,12 @@ fn parse(text: &str) -> (Chapters, Questions) {
     )
 }
 
-#[test]
-fn debian_faq_retrieval() {
-    let text = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
-    let (chapters, questions) = parse(&text);
-    let fx: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(common::repo().join("tests/fixtures/debian_faq_st.json")).unwrap(),
-    )
-    .unwrap();
-    assert_eq!(chapters.len(), 16);
-    assert_eq!(questions.len(), 119);
-    for ((n, body), c) in chapters.iter().zip(fx["chapters"].as_array().unwrap()) {
-        assert_eq!(*n as u64, c["number"].as_u64().unwrap());
-        assert_eq!(
-            kerf::store::sha256_hex(body.as_bytes()),
-            c["body_sha256"].as_str().unwrap(),
-            "chapter {n} parsed as the reference script does"
-        );
-    }
+/// Chapters as documents (`chapter-NN`) and question headings as references expecting their
+/// chapter.
+fn documents_and_questions(
+    chapters: &Chapters,
+    questions: &Questions,
+) -> (Vec<Document>, Vec<Reference>) {
     let docs: Vec<Document> = chapters
         .iter()
         .map(|(n, body)| Document {
@@ -106,6 +94,28 @@ fn debian_faq_retrieval() {
             expect: [(format!("chapter-{ch:02}"), 1)].into(),
         })
         .collect();
+    (docs, refs)
+}
+
+#[test]
+fn debian_faq_retrieval() {
+    let text = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
+    let (chapters, questions) = parse(&text);
+    let fx: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(common::repo().join("tests/fixtures/debian_faq_st.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(chapters.len(), 16);
+    assert_eq!(questions.len(), 119);
+    for ((n, body), c) in chapters.iter().zip(fx["chapters"].as_array().unwrap()) {
+        assert_eq!(*n as u64, c["number"].as_u64().unwrap());
+        assert_eq!(
+            kerf::store::sha256_hex(body.as_bytes()),
+            c["body_sha256"].as_str().unwrap(),
+            "chapter {n} parsed as the reference script does"
+        );
+    }
+    let (docs, refs) = documents_and_questions(&chapters, &questions);
     let (info, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
     let corpus = Corpus::new(docs, &counter).unwrap();
     let embedder = BertEmbedder::load(
@@ -241,25 +251,7 @@ fn self_retrieval_against_the_faq_questions() {
 
     let text = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
     let (chapters, questions) = parse(&text);
-    let docs: Vec<Document> = chapters
-        .iter()
-        .map(|(n, body)| Document {
-            id: format!("chapter-{n:02}"),
-            origin: "faq".into(),
-            text: body.clone(),
-        })
-        .collect();
-    let refs: Vec<Reference> = questions
-        .iter()
-        .enumerate()
-        .map(|(i, (q, ch))| Reference {
-            id: format!("q{i}"),
-            text: q.clone(),
-            prefix: String::new(),
-            kind: "question".into(),
-            expect: [(format!("chapter-{ch:02}"), 1)].into(),
-        })
-        .collect();
+    let (docs, refs) = documents_and_questions(&chapters, &questions);
     let (info, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
     let corpus = Corpus::new(docs, &counter).unwrap();
     let opts = ProbeOptions::new(120, 7, info.default_window());

@@ -499,18 +499,7 @@ fn write_handout(
         quality: e.summary.ndcg_at_10,
         on_front,
     };
-    let corpus_name = a
-        .input
-        .paths
-        .iter()
-        .map(|p| {
-            p.file_name().map_or_else(
-                || p.display().to_string(),
-                |n| n.to_string_lossy().into_owned(),
-            )
-        })
-        .collect::<Vec<_>>()
-        .join(", ");
+    let corpus_name = a.input.label();
     let chart_in = ChartInput {
         title: format!("kerf compare on {corpus_name}: {METRIC} against cost"),
         metric: METRIC.into(),

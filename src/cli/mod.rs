@@ -79,6 +79,20 @@ pub struct InputArgs {
 }
 
 impl InputArgs {
+    /// The inputs by file or folder name, for titles ("demo-texts", "a.txt, b.txt").
+    pub fn label(&self) -> String {
+        self.paths
+            .iter()
+            .map(|p| {
+                p.file_name().map_or_else(
+                    || p.display().to_string(),
+                    |n| n.to_string_lossy().into_owned(),
+                )
+            })
+            .collect::<Vec<_>>()
+            .join(", ")
+    }
+
     /// The reading options these flags ask for.
     fn options(&self) -> InputOptions {
         InputOptions {

@@ -417,18 +417,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
         eprintln!("kerf: no embedding time was measured for every plan (their vectors came from the cache), so the chart's cost axis shows tokens");
         axis = CostAxis::Tokens;
     }
-    let corpus_name = a
-        .input
-        .paths
-        .iter()
-        .map(|p| {
-            p.file_name().map_or_else(
-                || p.display().to_string(),
-                |n| n.to_string_lossy().into_owned(),
-            )
-        })
-        .collect::<Vec<_>>()
-        .join(", ");
+    let corpus_name = a.input.label();
     let chart_in = chart_input(
         &rows,
         baseline_row.as_ref(),

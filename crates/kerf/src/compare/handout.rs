@@ -21,7 +21,7 @@ use super::refs::Reference;
 use crate::model::ModelInfo;
 use crate::plan::ResolvedPlan;
 use crate::segment::LineIndex;
-use crate::store::{AtomicFile, StoreError};
+use crate::store::StoreError;
 use crate::survey::{self, CorpusStats, DocStats};
 
 /// One plan's row in the plan table.
@@ -625,14 +625,7 @@ impl Handout {
     /// Write the handout to `path` in full or not at all (an interrupted or failed write leaves
     /// no file that looks complete).
     pub fn write(&self, path: &Path) -> Result<(), StoreError> {
-        use std::io::Write as _;
-        let mut f = AtomicFile::create(path, true)?;
-        f.write_all(self.to_html().as_bytes())
-            .map_err(|source| StoreError::Io {
-                path: path.to_path_buf(),
-                source,
-            })?;
-        f.commit()
+        crate::store::write_atomic(path, self.to_html().as_bytes(), true)
     }
 }
 
