@@ -217,7 +217,8 @@ pub fn run(a: CompareArgs) -> Result<()> {
         if let Some(b) = bar {
             b.finish_and_clear();
         }
-        let eval = engine::score_plan(
+        let late_tokens = engine::late_input_tokens(&corpus, &chunks, &l.plan, e.as_ref())?;
+        let mut eval = engine::score_plan(
             &corpus,
             &references,
             &rv,
@@ -226,6 +227,9 @@ pub fn run(a: CompareArgs) -> Result<()> {
             &vectors,
             embedded,
         );
+        if let Some(t) = late_tokens {
+            eval.input_tokens = t;
+        }
         let probe_eval = match &probe_set {
             Some(set) => {
                 let pv = engine::embed_refs(

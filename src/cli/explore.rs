@@ -120,6 +120,15 @@ pub fn run(a: ExploreArgs) -> Result<()> {
         p
     })
     .context("kerf explore needs the model's tokenizer even to cut (scripts/fetch-model fetches the default model)")?;
+    // The explorer embeds each chunk alone; showing ordinary vectors under a late-chunking
+    // plan would mislead, so such a plan is refused with the commands that do run it.
+    anyhow::ensure!(
+        loaded.plan.profile.pool.context == 0,
+        "{}: [pool] context = {} asks for late chunking, which explore does not run yet (it embeds each chunk alone); judge the plan with `kerf compare` or `kerf sweep --grid \"context=0,{}\"`, or set context = 0 to explore its cut",
+        a.plan.profile.as_ref().map_or("the plan".to_string(), |p| p.display().to_string()),
+        loaded.plan.profile.pool.context,
+        loaded.plan.profile.pool.context
+    );
     // Saved profiles must name the model the explorer runs, from wherever they are used.
     if a.plan.model.is_some() || loaded.plan.profile.model.folder.is_some() {
         loaded.plan.profile.model.folder =

@@ -54,6 +54,10 @@ pub struct NewArgs {
     /// Chunk aggregation: mean, dim-max, token-mean, soft-centroid, first, best, sum.
     #[arg(long, default_value = "mean", value_parser = parse_enum::<ChunkPooling>)]
     pub chunks: ChunkPooling,
+    /// Late chunking: tokens the encoder sees in one pass around the chunks it pools (at
+    /// least the window, at most the model's positions); 0 encodes each chunk alone.
+    #[arg(long, default_value_t = 0)]
+    pub context: usize,
     /// Model folder (default: the fetched default model).
     #[arg(long)]
     pub model: Option<PathBuf>,
@@ -112,6 +116,13 @@ pub fn run(c: ProfileCmd) -> Result<()> {
                 r.prefix_tokens,
                 r.budget()
             )?;
+            if let Some(late) = p.pool.late() {
+                writeln!(
+                    out,
+                    "# late chunking: passes of up to {} tokens, {} tokens of left context before a pass's first chunk",
+                    late.context, late.overlap
+                )?;
+            }
         }
         ProfileCmd::New(a) => {
             let p = Profile {
@@ -128,6 +139,7 @@ pub fn run(c: ProfileCmd) -> Result<()> {
                     tokens: a.tokens,
                     chunks: a.chunks,
                     precision: Precision::F32,
+                    context: a.context,
                     ..Default::default()
                 },
                 ..Profile::default()

@@ -226,7 +226,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
     let (mut embedded, mut scored) = (0usize, 0usize);
     // Encoding seconds and tokens per precision: int8 runs faster than f32, so each plan's
     // time is estimated from its own precision's measured rate.
-    let mut measured: Vec<(Precision, f64, usize)> = Vec::new();
+    let mut measured: Vec<(RateKey, f64, usize)> = Vec::new();
     let bar = super::embed::progress_bar(groups.len() + 1, a.encoder.quiet, "sweep");
     let mut interrupted = false;
     let probe_set = match a.probing.wanted(a.refs.is_some()) {
@@ -286,9 +286,11 @@ pub fn run(a: SweepArgs) -> Result<()> {
             t0.elapsed().as_secs_f64(),
             after.real_tokens - before.real_tokens,
         );
-        match measured.iter_mut().find(|m| m.0 == first.pool.precision) {
+        let late_tokens = engine::late_input_tokens(&corpus, &chunks, &resolved, e.as_ref())?;
+        let key = rate_key(first);
+        match measured.iter_mut().find(|m| m.0 == key) {
             Some(m) => (m.1, m.2) = (m.1 + seconds, m.2 + tokens),
-            None => measured.push((first.pool.precision, seconds, tokens)),
+            None => measured.push((key, seconds, tokens)),
         }
         if members[0] != base_index {
             embedded += n_new;
@@ -298,7 +300,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
         for &pi in members {
             let mut rp = resolved.clone();
             rp.profile = plans[pi].clone();
-            let ev = engine::score_plan(
+            let mut ev = engine::score_plan(
                 &corpus,
                 &references,
                 &rv,
@@ -307,6 +309,9 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 &vectors,
                 n_new,
             );
+            if let Some(t) = late_tokens {
+                ev.input_tokens = t;
+            }
             let n_chunks: usize = ev.chunks.iter().map(Vec::len).sum();
             if pi != base_index {
                 scored += n_chunks;
@@ -372,7 +377,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
     // a precision's vectors all came from the cache).
     let rates = measured_rates(&measured);
     for r in rows.iter_mut().chain(baseline_row.as_mut()) {
-        r.cost.embed_seconds = match rates.iter().find(|(p, _)| *p == r.profile.pool.precision) {
+        r.cost.embed_seconds = match rates.iter().find(|(k, _)| *k == rate_key(&r.profile)) {
             Some((_, rate)) => r.cost.input_tokens as f64 / rate,
             None => f64::NAN,
         };
@@ -383,7 +388,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
             if rates.len() == 1 {
                 format!(" · {rate:.0} tokens/s measured")
             } else {
-                format!(" · {} {rate:.0} tokens/s measured", p.name())
+                format!(" · {} {rate:.0} tokens/s measured", rate_name(*p))
             }
         })
         .collect();
@@ -499,7 +504,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
                 "chunk_sets": groups.len(),
                 "chunks_embedded": embedded,
                 "chunks_scored": scored,
-                "tokens_per_second": rates.iter().map(|(p, r)| (p.name(), *r)).collect::<std::collections::BTreeMap<_, _>>(),
+                "tokens_per_second": rates.iter().map(|(p, r)| (rate_name(*p), *r)).collect::<std::collections::BTreeMap<_, _>>(),
                 "sampled": scale != 1.0,
                 "interrupted": interrupted,
                 "baseline": baseline_row.as_ref().map(|b| serde_json::json!({ "name": b.profile.name, "quality": b.quality, "summary": b.summary, "cost": b.cost, "self_retrieval": b.probes })),
@@ -581,9 +586,25 @@ pub fn run(a: SweepArgs) -> Result<()> {
     Ok(())
 }
 
-/// Tokens a second per precision, from `(precision, seconds, tokens)` measured while
-/// embedding; only measurements long enough to mean something (half a second) count.
-fn measured_rates(measured: &[(Precision, f64, usize)]) -> Vec<(Precision, f64)> {
+/// What an encoder's throughput depends on in a sweep: the arithmetic, and whether it runs
+/// long late-chunking passes (attention costs more per token in a longer input).
+type RateKey = (Precision, bool);
+
+fn rate_key(p: &kerf::profile::Profile) -> RateKey {
+    (p.pool.precision, p.pool.context > 0)
+}
+
+fn rate_name((precision, late): RateKey) -> String {
+    if late {
+        format!("{} late", precision.name())
+    } else {
+        precision.name().to_string()
+    }
+}
+
+/// Tokens a second per key, from `(key, seconds, tokens)` measured while embedding; only
+/// measurements long enough to mean something (half a second) count.
+fn measured_rates<K: Copy>(measured: &[(K, f64, usize)]) -> Vec<(K, f64)> {
     measured
         .iter()
         .filter(|(_, seconds, tokens)| *seconds > 0.5 && *tokens > 0)

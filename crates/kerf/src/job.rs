@@ -312,6 +312,8 @@ struct CutDoc {
     id: String,
     records: Vec<ChunkRecord>,
     new_tokens: Vec<usize>,
+    /// The document's text, kept only under late chunking (its passes span chunks).
+    text: String,
 }
 
 /// The embedding job of a plan: cut, embed through the cache, pool, hand to a sink.
@@ -394,6 +396,7 @@ impl EmbedJob<'_> {
                 .par_iter()
                 .map(|d| cut_document(plan, counter, d))
                 .collect();
+            let late = self.plan.profile.pool.late().is_some();
             for (d, c) in group.drain(..).zip(cut) {
                 let (records, new_tokens) = c?;
                 block_tokens += records.iter().map(|r| r.tokens).sum::<usize>();
@@ -401,6 +404,7 @@ impl EmbedJob<'_> {
                     id: d.id,
                     records,
                     new_tokens,
+                    text: if late { d.text } else { String::new() },
                 });
                 if block_tokens >= self.settings.block_tokens {
                     self.flush(&mut block, sink, &mut report, progress, stop)?;
@@ -426,10 +430,6 @@ impl EmbedJob<'_> {
         progress: &mut dyn FnMut(&JobProgress),
         stop: &AtomicBool,
     ) -> Result<(), JobError> {
-        let inputs: Vec<(&str, usize)> = block
-            .iter()
-            .flat_map(|d| d.records.iter().map(|r| (r.text.as_str(), r.tokens)))
-            .collect();
         let base = JobProgress {
             documents: report.documents,
             chunks: report.chunks,
@@ -437,21 +437,64 @@ impl EmbedJob<'_> {
             tokens: report.input_tokens,
             cache: report.cache,
         };
-        let (vectors, cache_report) = embed_cached_until(
-            self.embedder,
-            self.cache,
-            &self.plan.profile.cut.prefix,
-            &inputs,
-            self.settings.batch_tokens,
-            &mut |done, _| {
-                progress(&JobProgress {
-                    tokens: base.tokens + done,
-                    ..base
-                })
-            },
-            stop,
-        )?;
-        drop(inputs);
+        let mut tell = |done: usize, _: usize| {
+            progress(&JobProgress {
+                tokens: base.tokens + done,
+                ..base
+            })
+        };
+        let prefix = &self.plan.profile.cut.prefix;
+        let (vectors, cache_report) = match self.plan.profile.pool.late() {
+            None => {
+                let inputs: Vec<(&str, usize)> = block
+                    .iter()
+                    .flat_map(|d| d.records.iter().map(|r| (r.text.as_str(), r.tokens)))
+                    .collect();
+                embed_cached_until(
+                    self.embedder,
+                    self.cache,
+                    prefix,
+                    &inputs,
+                    self.settings.batch_tokens,
+                    &mut tell,
+                    stop,
+                )?
+            }
+            Some(late) => {
+                let ranges: Vec<Vec<std::ops::Range<usize>>> = block
+                    .iter()
+                    .map(|d| d.records.iter().map(|r| r.bytes[0]..r.bytes[1]).collect())
+                    .collect();
+                let docs: Vec<crate::late::LateDocument<'_>> = block
+                    .iter()
+                    .zip(&ranges)
+                    .map(|(d, r)| crate::late::LateDocument {
+                        text: &d.text,
+                        chunks: r,
+                        hole: None,
+                    })
+                    .collect();
+                let (vectors, cache_report) = crate::late::embed_documents(
+                    self.embedder,
+                    self.cache,
+                    prefix,
+                    &docs,
+                    &late,
+                    self.settings.batch_tokens,
+                    &mut tell,
+                    stop,
+                )?;
+                let vectors = crate::late::complete(
+                    self.embedder,
+                    self.cache,
+                    prefix,
+                    &docs,
+                    vectors,
+                    self.settings.batch_tokens,
+                )?;
+                (vectors.into_iter().flatten().collect(), cache_report)
+            }
+        };
         report.cache.add(&cache_report);
         let how = document_vector_pooling(self.plan.profile.pool.chunks);
         let temperature = self.plan.profile.pool.temperature;

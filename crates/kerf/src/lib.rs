@@ -12,6 +12,7 @@ pub mod corpus;
 pub mod embed;
 pub mod home;
 pub mod job;
+pub mod late;
 pub mod model;
 pub mod plan;
 pub mod pool;

@@ -78,6 +78,14 @@ pub fn resolve(
             info.dir.display()
         ));
     }
+    let context = profile.pool.context;
+    if context > info.max_position_embeddings {
+        return err(format!(
+            "[pool] context {context} exceeds the model's limit of {} positions (config.json max_position_embeddings in {})",
+            info.max_position_embeddings,
+            info.dir.display()
+        ));
+    }
     let prefix_tokens = if c.prefix.is_empty() {
         0
     } else {

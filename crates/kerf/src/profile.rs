@@ -239,10 +239,46 @@ pub struct PoolSection {
     /// Arithmetic of the encoder's forward pass.
     #[serde(default)]
     pub precision: Precision,
+    /// Late chunking: tokens the encoder sees in one pass around the chunks it pools (specials
+    /// and prefix included; at most the model's positions). 0 encodes each chunk alone.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub context: usize,
+    /// Late chunking: tokens of left context a pass keeps before its first chunk when a
+    /// document needs more than one pass.
+    #[serde(
+        default = "default_context_overlap",
+        skip_serializing_if = "is_default_context_overlap"
+    )]
+    pub context_overlap: usize,
 }
 
 fn default_temperature() -> f32 {
     0.1
+}
+
+fn is_zero(n: &usize) -> bool {
+    *n == 0
+}
+
+/// Left context a late-chunking pass keeps by default.
+pub const DEFAULT_CONTEXT_OVERLAP: usize = 64;
+
+fn default_context_overlap() -> usize {
+    DEFAULT_CONTEXT_OVERLAP
+}
+
+fn is_default_context_overlap(n: &usize) -> bool {
+    *n == DEFAULT_CONTEXT_OVERLAP
+}
+
+impl PoolSection {
+    /// The late-chunking settings, or `None` when each chunk is encoded alone.
+    pub fn late(&self) -> Option<crate::late::LateOptions> {
+        (self.context > 0).then_some(crate::late::LateOptions {
+            context: self.context,
+            overlap: self.context_overlap,
+        })
+    }
 }
 
 /// Which encoder a vector comes from: a plan's token pooling and arithmetic. Two plans with the
@@ -272,6 +308,8 @@ impl Default for PoolSection {
             chunks: ChunkPooling::Mean,
             temperature: default_temperature(),
             precision: Precision::F32,
+            context: 0,
+            context_overlap: DEFAULT_CONTEXT_OVERLAP,
         }
     }
 }
@@ -389,6 +427,24 @@ impl Profile {
         }
         if c.boundary == Boundary::Head && c.overlap > 0 {
             return bad("[cut] overlap has no meaning with boundary = \"head\" (one chunk per document); set it to 0".into());
+        }
+        let p = &self.pool;
+        if p.context > 0 {
+            if p.context < c.window {
+                return bad(format!(
+                    "[pool] context ({}) must be at least the window ({}): late chunking encodes each chunk inside a longer pass (0 encodes chunks alone)",
+                    p.context, c.window
+                ));
+            }
+            if p.tokens == TokenPooling::Cls {
+                return bad("[pool] context needs tokens = \"mean\" or \"max\": late chunking pools each chunk's own token rows, and a chunk has no [CLS] row of its own".into());
+            }
+            if p.context_overlap >= p.context / 2 {
+                return bad(format!(
+                    "[pool] context_overlap ({}) must be below half the context ({})",
+                    p.context_overlap, p.context
+                ));
+            }
         }
         let t = self.pool.temperature;
         if !(t.is_finite() && t > 0.0) {

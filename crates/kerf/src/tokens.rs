@@ -38,7 +38,7 @@ pub const TOKENIZE_PIECE_BYTES: usize = 256 * 1024;
 /// just before the last line break in the second half of the piece, else before the last
 /// whitespace character in it, else before the first whitespace character after it (a run with
 /// no whitespace is never cut), else the text's end.
-fn piece_end(text: &str, start: usize, piece_bytes: usize) -> usize {
+pub(crate) fn piece_end(text: &str, start: usize, piece_bytes: usize) -> usize {
     if text.len() - start <= piece_bytes {
         return text.len();
     }

@@ -334,6 +334,41 @@ pub fn embed_chunks(
     cache: Option<&crate::cache::VectorCache>,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<(ChunkVectors, usize), JobError> {
+    if let Some(late) = plan.profile.pool.late() {
+        let ranges: Vec<Vec<std::ops::Range<usize>>> = chunks
+            .iter()
+            .map(|cs| cs.iter().map(|c| c.byte_range.clone()).collect())
+            .collect();
+        let docs: Vec<crate::late::LateDocument<'_>> = corpus
+            .docs
+            .iter()
+            .zip(&ranges)
+            .map(|(d, r)| crate::late::LateDocument {
+                text: &d.text,
+                chunks: r,
+                hole: None,
+            })
+            .collect();
+        let (vectors, report) = crate::late::embed_documents(
+            embedder,
+            cache,
+            &plan.profile.cut.prefix,
+            &docs,
+            &late,
+            REF_BATCH_TOKENS,
+            progress,
+            &std::sync::atomic::AtomicBool::new(false),
+        )?;
+        let vectors = crate::late::complete(
+            embedder,
+            cache,
+            &plan.profile.cut.prefix,
+            &docs,
+            vectors,
+            REF_BATCH_TOKENS,
+        )?;
+        return Ok((vectors, report.embedded));
+    }
     let inputs: Vec<(&str, usize)> = corpus
         .docs
         .iter()
@@ -356,6 +391,34 @@ pub fn embed_chunks(
         progress,
     )?;
     Ok((unflatten(chunks, flat), report.embedded))
+}
+
+/// Encoder tokens of a late-chunking plan (its passes), or `None` for ordinary chunking, whose
+/// cost is the sum of its chunks' inputs (as [`score_plan`] counts).
+pub fn late_input_tokens(
+    corpus: &Corpus,
+    chunks: &[Vec<Chunk>],
+    plan: &ResolvedPlan,
+    embedder: &dyn crate::embed::Embedder,
+) -> Result<Option<usize>, JobError> {
+    let Some(late) = plan.profile.pool.late() else {
+        return Ok(None);
+    };
+    let ranges: Vec<Vec<std::ops::Range<usize>>> = chunks
+        .iter()
+        .map(|cs| cs.iter().map(|c| c.byte_range.clone()).collect())
+        .collect();
+    let docs: Vec<crate::late::LateDocument<'_>> = corpus
+        .docs
+        .iter()
+        .zip(&ranges)
+        .map(|(d, r)| crate::late::LateDocument {
+            text: &d.text,
+            chunks: r,
+            hole: None,
+        })
+        .collect();
+    crate::late::pass_tokens(embedder, &plan.profile.cut.prefix, &docs, &late).map(Some)
 }
 
 /// Cut, embed, score and measure one plan.

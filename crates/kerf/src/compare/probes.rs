@@ -306,6 +306,133 @@ pub fn holed(text: &str, chunk: &Range<usize>, hole: &Range<usize>) -> Option<St
     Some(joined)
 }
 
+/// A chunk of a probe's own document whose vector changes while the probe is scored.
+#[derive(Debug, Clone, PartialEq)]
+struct Replacement {
+    /// Chunk index.
+    chunk: usize,
+    /// Its vector without the sentence; `None` drops the chunk (nothing of it is left).
+    vector: Option<Vec<f32>>,
+    /// The chunk held the sentence (not merely saw it as context).
+    held: bool,
+}
+
+/// Per probe, replacements in chunk order; chunks embedded now; encoder tokens spent.
+type Holed = (Vec<Vec<Replacement>>, usize, usize);
+
+/// Ordinary chunking: each chunk that held the sentence is embedded again alone without it.
+fn holed_alone(
+    corpus: &Corpus,
+    set: &ProbeSet,
+    chunks: &[Vec<Chunk>],
+    prefix: &str,
+    embedder: &dyn Embedder,
+    cache: Option<&crate::cache::VectorCache>,
+) -> Result<Holed, JobError> {
+    let holes: Vec<Vec<(usize, String)>> = set
+        .probes
+        .iter()
+        .map(|p| {
+            let text = &corpus.docs[p.doc].text;
+            chunks[p.doc]
+                .iter()
+                .enumerate()
+                .filter_map(|(i, c)| holed(text, &c.byte_range, &p.bytes).map(|t| (i, t)))
+                .collect()
+        })
+        .collect();
+    let mut inputs: Vec<(&str, usize)> = Vec::new();
+    for (_, t) in holes.iter().flatten() {
+        if !t.is_empty() {
+            inputs.push((t.as_str(), embedder.count_tokens(&format!("{prefix}{t}"))?));
+        }
+    }
+    let holed_tokens = inputs.iter().map(|x| x.1).sum();
+    let (vectors, report) = embed_cached(
+        embedder,
+        cache,
+        prefix,
+        &inputs,
+        REF_BATCH_TOKENS,
+        &mut |_, _| {},
+    )?;
+    let mut next = vectors.into_iter();
+    let replacements = holes
+        .into_iter()
+        .map(|hs| {
+            hs.into_iter()
+                .map(|(chunk, t)| Replacement {
+                    chunk,
+                    vector: (!t.is_empty()).then(|| next.next().expect("one vector per input")),
+                    held: true,
+                })
+                .collect()
+        })
+        .collect();
+    Ok((replacements, report.embedded, holed_tokens))
+}
+
+/// Late chunking: the sentence's tokens are taken out of every pass that holds them, and every
+/// chunk of those passes is pooled again (its context lost the sentence too).
+fn holed_in_context(
+    corpus: &Corpus,
+    set: &ProbeSet,
+    chunks: &[Vec<Chunk>],
+    prefix: &str,
+    late: &crate::late::LateOptions,
+    embedder: &dyn Embedder,
+    cache: Option<&crate::cache::VectorCache>,
+) -> Result<Holed, JobError> {
+    let ranges: Vec<Vec<Range<usize>>> = chunks
+        .iter()
+        .map(|cs| cs.iter().map(|c| c.byte_range.clone()).collect())
+        .collect();
+    let docs: Vec<crate::late::LateDocument<'_>> = set
+        .probes
+        .iter()
+        .map(|p| crate::late::LateDocument {
+            text: &corpus.docs[p.doc].text,
+            chunks: &ranges[p.doc],
+            hole: Some(&p.bytes),
+        })
+        .collect();
+    let mut total = 0;
+    let (vectors, report) = crate::late::embed_documents(
+        embedder,
+        cache,
+        prefix,
+        &docs,
+        late,
+        REF_BATCH_TOKENS,
+        &mut |_, t| total = t,
+        &std::sync::atomic::AtomicBool::new(false),
+    )?;
+    let replacements = set
+        .probes
+        .iter()
+        .zip(vectors)
+        .map(|(p, vs)| {
+            let text = &corpus.docs[p.doc].text;
+            vs.into_iter()
+                .enumerate()
+                .filter_map(|(chunk, vector)| {
+                    let rest = holed(text, &ranges[p.doc][chunk], &p.bytes);
+                    let held = rest.is_some();
+                    // A chunk that held the sentence and got no vector is dropped only when
+                    // nothing of it is left.
+                    let emptied = rest.is_some_and(|t| t.is_empty());
+                    (vector.is_some() || emptied).then_some(Replacement {
+                        chunk,
+                        vector,
+                        held,
+                    })
+                })
+                .collect()
+        })
+        .collect();
+    Ok((replacements, report.embedded, total))
+}
+
 /// A plan judged by its probes.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ProbeEval {
@@ -339,34 +466,10 @@ pub fn score(
     cache: Option<&crate::cache::VectorCache>,
 ) -> Result<ProbeEval, JobError> {
     let prefix = plan.profile.cut.prefix.as_str();
-    // Every probe's holed chunks: (chunk index, text); texts embedded together.
-    let holes: Vec<Vec<(usize, String)>> = set
-        .probes
-        .iter()
-        .map(|p| {
-            let text = &corpus.docs[p.doc].text;
-            chunks[p.doc]
-                .iter()
-                .enumerate()
-                .filter_map(|(i, c)| holed(text, &c.byte_range, &p.bytes).map(|t| (i, t)))
-                .collect()
-        })
-        .collect();
-    let mut inputs: Vec<(&str, usize)> = Vec::new();
-    for (_, t) in holes.iter().flatten() {
-        if !t.is_empty() {
-            inputs.push((t.as_str(), embedder.count_tokens(&format!("{prefix}{t}"))?));
-        }
-    }
-    let holed_tokens = inputs.iter().map(|x| x.1).sum();
-    let (holed_vectors, report) = embed_cached(
-        embedder,
-        cache,
-        prefix,
-        &inputs,
-        REF_BATCH_TOKENS,
-        &mut |_, _| {},
-    )?;
+    let (replacements, embedded, holed_tokens) = match plan.profile.pool.late() {
+        None => holed_alone(corpus, set, chunks, prefix, embedder, cache)?,
+        Some(late) => holed_in_context(corpus, set, chunks, prefix, &late, embedder, cache)?,
+    };
     let how = plan.profile.pool.chunks;
     let temperature = plan.profile.pool.temperature;
     let doc_vecs: Vec<Option<Vec<f32>>> = vectors
@@ -377,25 +480,26 @@ pub fn score(
             pool::doc_vector(how, &views, &new_tokens(cs), temperature)
         })
         .collect();
-    let mut next = holed_vectors.iter();
     let mut scores = Vec::with_capacity(set.probes.len());
     let mut hits = 0usize;
-    for ((p, q), hs) in set.probes.iter().zip(probe_vectors).zip(&holes) {
-        // The probe's own document: holed chunks swapped in, emptied ones dropped.
+    for ((p, q), rs) in set.probes.iter().zip(probe_vectors).zip(&replacements) {
+        // The probe's own document: replaced chunks swapped in, emptied ones dropped.
         let mut own: Vec<&[f32]> = Vec::new();
         let mut own_new: Vec<usize> = Vec::new();
         let mut held = Vec::new(); // positions in `own` of chunks that held the sentence
         let fresh = new_tokens(&chunks[p.doc]);
-        let mut h = hs.iter().peekable();
+        let mut r = rs.iter().peekable();
         for (i, v) in vectors[p.doc].iter().enumerate() {
-            match h.peek() {
-                Some((hi, t)) if *hi == i => {
-                    if !t.is_empty() {
-                        held.push(own.len());
-                        own.push(next.next().expect("one vector per holed input"));
+            match r.peek() {
+                Some(x) if x.chunk == i => {
+                    if let Some(v) = &x.vector {
+                        if x.held {
+                            held.push(own.len());
+                        }
+                        own.push(v);
                         own_new.push(fresh[i]);
                     }
-                    h.next();
+                    r.next();
                 }
                 _ => {
                     own.push(v);
@@ -468,7 +572,7 @@ pub fn score(
         scores,
         summary,
         bands,
-        embedded: report.embedded,
+        embedded,
         holed_tokens,
     })
 }

@@ -30,6 +30,8 @@ pub struct Grid {
     pub chunks: Vec<ChunkPooling>,
     /// Precisions.
     pub precision: Vec<Precision>,
+    /// Late-chunking contexts in tokens (0: each chunk encoded alone).
+    pub context: Vec<usize>,
 }
 
 impl Default for Grid {
@@ -45,6 +47,7 @@ impl Default for Grid {
                 ChunkPooling::Best,
             ],
             precision: vec![Precision::F32],
+            context: vec![0],
         }
     }
 }
@@ -55,7 +58,8 @@ fn parse_value<T: serde::de::DeserializeOwned>(key: &str, v: &str) -> Result<T, 
 }
 
 impl Grid {
-    /// Parse `key=v1,v2 key=v3 …` (keys: window, overlap, boundary, tokens, chunks, precision);
+    /// Parse `key=v1,v2 key=v3 …` (keys: window, overlap, boundary, tokens, chunks, precision,
+    /// context);
     /// keys not given keep their defaults.
     pub fn parse(spec: &str) -> Result<Self, GridError> {
         let mut g = Grid::default();
@@ -78,13 +82,14 @@ impl Grid {
             match key {
                 "window" => g.window = nums()?,
                 "overlap" => g.overlap = nums()?,
+                "context" => g.context = nums()?,
                 "boundary" => g.boundary = vals.iter().map(|v| parse_value(key, v)).collect::<Result<_, _>>()?,
                 "tokens" => g.tokens = vals.iter().map(|v| parse_value(key, v)).collect::<Result<_, _>>()?,
                 "chunks" => g.chunks = vals.iter().map(|v| parse_value(key, v)).collect::<Result<_, _>>()?,
                 "precision" => g.precision = vals.iter().map(|v| parse_value(key, v)).collect::<Result<_, _>>()?,
                 other => {
                     return Err(GridError(format!(
-                        "unknown dimension `{other}` (use window, overlap, boundary, tokens, chunks, precision)"
+                        "unknown dimension `{other}` (use window, overlap, boundary, tokens, chunks, precision, context)"
                     )))
                 }
             }
@@ -103,13 +108,23 @@ impl Grid {
                 for &overlap in &self.overlap {
                     for &tokens in &self.tokens {
                         for &precision in &self.precision {
-                            for &chunks in &self.chunks {
+                            for (&chunks, &context) in self
+                                .chunks
+                                .iter()
+                                .flat_map(|c| self.context.iter().map(move |x| (c, x)))
+                            {
                                 let (overlap, chunks) = if boundary == Boundary::Head {
                                     (0, ChunkPooling::First)
                                 } else {
                                     (overlap, chunks)
                                 };
                                 if overlap >= window / 2 {
+                                    continue;
+                                }
+                                // Late chunking needs a pass at least a window long and
+                                // token rows to pool.
+                                if context > 0 && (context < window || tokens == TokenPooling::Cls)
+                                {
                                     continue;
                                 }
                                 let mut p = base.clone();
@@ -120,6 +135,7 @@ impl Grid {
                                 p.pool.tokens = tokens;
                                 p.pool.chunks = chunks;
                                 p.pool.precision = precision;
+                                p.pool.context = context;
                                 p.name = plan_name(&p);
                                 if seen.insert(p.name.clone()) {
                                     out.push(p);
@@ -146,6 +162,9 @@ pub fn plan_name(p: &Profile) -> String {
         n.push_str(&format!("-o{}", p.cut.overlap));
     }
     n.push_str(&format!("-{tokens}-{}", p.pool.chunks.name()));
+    if p.pool.context > 0 {
+        n.push_str(&format!("-late{}", p.pool.context));
+    }
     if p.pool.precision != Precision::F32 {
         n.push('-');
         n.push_str(p.pool.precision.name());
@@ -168,6 +187,8 @@ pub struct ChunkKey {
     pub tokens: String,
     /// Precision.
     pub precision: String,
+    /// Late-chunking context and its pass overlap (0, _: chunks encoded alone).
+    pub context: (usize, usize),
 }
 
 /// The chunk key of a plan.
@@ -179,6 +200,10 @@ pub fn chunk_key(p: &Profile) -> ChunkKey {
         min_chunk: p.cut.min_chunk,
         tokens: format!("{:?}", p.pool.tokens),
         precision: format!("{:?}", p.pool.precision),
+        context: match p.pool.context {
+            0 => (0, 0),
+            c => (c, p.pool.context_overlap),
+        },
     }
 }
 

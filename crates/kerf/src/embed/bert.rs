@@ -11,7 +11,10 @@ use sha2::{Digest, Sha256};
 use tokenizers::{Tokenizer, TruncationParams};
 
 use super::packed::{self, PackedModel};
-use super::{EmbedError, EmbedOptions, EmbedStats, Embedder, Engine, Precision, TokenPooling};
+use super::{
+    EmbedError, EmbedOptions, EmbedStats, Embedder, Engine, Precision, SpanPass, TokenIds,
+    TokenPooling,
+};
 use crate::model::ModelInfo;
 
 /// The forward pass behind a [`BertEmbedder`].
@@ -31,9 +34,28 @@ pub struct BertEmbedder {
     normalize: bool,
     dim: usize,
     max_batch_tokens: usize,
+    /// Most tokens an input may hold, specials included.
+    max_input: usize,
+    /// Special ids before and after the content of an input, as the tokenizer's
+    /// post-processor puts them.
+    lead_ids: Vec<u32>,
+    tail_ids: Vec<u32>,
     fingerprint: String,
     pool: rayon::ThreadPool,
     stats: Mutex<EmbedStats>,
+}
+
+/// The special ids the post-processor puts before and after a text's content (`[CLS]` and
+/// `[SEP]` for BERT), read off the encoding of a one-word text.
+fn special_layout(tokenizer: &Tokenizer) -> Result<(Vec<u32>, Vec<u32>), String> {
+    let enc = tokenizer.encode("a", true).map_err(|e| e.to_string())?;
+    let (ids, mask) = (enc.get_ids(), enc.get_special_tokens_mask());
+    let lead = mask.iter().take_while(|&&m| m == 1).count();
+    let tail = mask.iter().rev().take_while(|&&m| m == 1).count();
+    if lead + tail >= ids.len() {
+        return Err("the tokenizer gives no content token for the text \"a\"".into());
+    }
+    Ok((ids[..lead].to_vec(), ids[ids.len() - tail..].to_vec()))
 }
 
 fn file_err(path: &Path, reason: impl ToString) -> EmbedError {
@@ -181,6 +203,7 @@ impl BertEmbedder {
         counter
             .with_truncation(None)
             .map_err(|e| file_err(&tok_path, e))?;
+        let (lead_ids, tail_ids) = special_layout(&counter).map_err(|e| file_err(&tok_path, e))?;
         tokenizer
             .with_truncation(Some(TruncationParams {
                 max_length: opts.max_input_tokens,
@@ -273,6 +296,9 @@ impl BertEmbedder {
             normalize,
             dim: config.hidden_size,
             max_batch_tokens: opts.max_batch_tokens.max(1),
+            max_input: opts.max_input_tokens,
+            lead_ids,
+            tail_ids,
             fingerprint,
             pool,
             stats: Mutex::new(EmbedStats::default()),
@@ -306,6 +332,39 @@ impl BertEmbedder {
         } else {
             rows
         })
+    }
+
+    /// Final hidden rows of each input, `[len, dim]` flattened, in input order.
+    fn hidden_rows(&self, ids: &[&[u32]]) -> Result<Vec<Vec<f32>>, EmbedError> {
+        match &self.runner {
+            Runner::Packed(model) => {
+                let hidden = model.forward_shared_out(ids, self.threads);
+                let mut out = Vec::with_capacity(ids.len());
+                let mut off = 0;
+                for s in ids {
+                    out.push(hidden[off * self.dim..(off + s.len()) * self.dim].to_vec());
+                    off += s.len();
+                }
+                Ok(out)
+            }
+            Runner::Candle(model) => {
+                // One input at a time: no padding, so no mask can leak into the rows.
+                let run = |e: candle_core::Error| EmbedError::Run(e.to_string());
+                ids.iter()
+                    .map(|x| {
+                        let input = Tensor::from_vec(x.to_vec(), (1, x.len()), &Device::Cpu)
+                            .map_err(run)?;
+                        let types = input.zeros_like().map_err(run)?;
+                        let hidden = model.forward(&input, &types, None).map_err(run)?;
+                        hidden
+                            .squeeze(0)
+                            .and_then(|t| t.flatten_all())
+                            .and_then(|t| t.to_vec1::<f32>())
+                            .map_err(run)
+                    })
+                    .collect()
+            }
+        }
     }
 
     fn run_candle(&self, model: &BertModel, ids: &[&[u32]]) -> Result<Vec<Vec<f32>>, EmbedError> {
@@ -434,5 +493,104 @@ impl Embedder for BertEmbedder {
 
     fn stats(&self) -> EmbedStats {
         *self.stats.lock().expect("stats lock")
+    }
+
+    fn token_ids(&self, text: &str) -> Result<Option<TokenIds>, EmbedError> {
+        // In pieces cut before whitespace, as the token counter does, so memory stays bounded
+        // on a long document and the tokens are the counter's.
+        let mut out = TokenIds::default();
+        let mut start = 0;
+        while start < text.len() {
+            let end = crate::tokens::piece_end(text, start, crate::tokens::TOKENIZE_PIECE_BYTES);
+            let enc = self
+                .counter
+                .encode(&text[start..end], false)
+                .map_err(|e| EmbedError::Run(format!("tokenizer: {e}")))?;
+            out.ids.extend_from_slice(enc.get_ids());
+            out.offsets
+                .extend(enc.get_offsets().iter().map(|&(a, b)| start + a..start + b));
+            start = end;
+        }
+        Ok(Some(out))
+    }
+
+    fn specials(&self) -> (usize, usize) {
+        (self.lead_ids.len(), self.tail_ids.len())
+    }
+
+    fn max_input_tokens(&self) -> usize {
+        self.max_input
+    }
+
+    fn embed_spans(&self, passes: &[SpanPass]) -> Result<Vec<Vec<Vec<f32>>>, EmbedError> {
+        let t0 = Instant::now();
+        let seqs: Vec<Vec<u32>> = passes
+            .iter()
+            .map(|p| {
+                let mut s = Vec::with_capacity(p.ids.len() + 2);
+                s.extend_from_slice(&self.lead_ids);
+                s.extend_from_slice(&p.ids);
+                s.extend_from_slice(&self.tail_ids);
+                s
+            })
+            .collect();
+        for (p, s) in passes.iter().zip(&seqs) {
+            if s.len() > self.max_input {
+                return Err(EmbedError::Run(format!(
+                    "a late-chunking pass of {} tokens is longer than the encoder's {}",
+                    s.len(),
+                    self.max_input
+                )));
+            }
+            if let Some(bad) = p.spans.iter().find(|r| r.is_empty() || r.end > s.len()) {
+                return Err(EmbedError::Run(format!(
+                    "span {bad:?} is empty or outside a pass of {} rows",
+                    s.len()
+                )));
+            }
+        }
+        let mut out = Vec::with_capacity(passes.len());
+        let mut stats = EmbedStats::default();
+        let mut start = 0;
+        while start < seqs.len() {
+            let mut end = start + 1;
+            let mut real = seqs[start].len();
+            while end < seqs.len() && real + seqs[end].len() <= self.max_batch_tokens {
+                real += seqs[end].len();
+                end += 1;
+            }
+            let batch: Vec<&[u32]> = seqs[start..end].iter().map(Vec::as_slice).collect();
+            let rows = self.pool.install(|| self.hidden_rows(&batch))?;
+            for (p, r) in passes[start..end].iter().zip(rows) {
+                out.push(
+                    p.spans
+                        .iter()
+                        .map(|span| {
+                            let v = packed::pool_tokens(
+                                &r[span.start * self.dim..span.end * self.dim],
+                                self.dim,
+                                self.pooling,
+                            );
+                            if self.normalize {
+                                crate::pool::normalize(v)
+                            } else {
+                                v
+                            }
+                        })
+                        .collect(),
+                );
+            }
+            stats.batches += 1;
+            stats.real_tokens += real;
+            stats.padded_tokens += real;
+            start = end;
+        }
+        let mut s = self.stats.lock().expect("stats lock");
+        s.inputs += passes.len();
+        s.real_tokens += stats.real_tokens;
+        s.padded_tokens += stats.padded_tokens;
+        s.batches += stats.batches;
+        s.seconds += t0.elapsed().as_secs_f64();
+        Ok(out)
     }
 }

@@ -104,6 +104,26 @@ pub struct EmbedStats {
     pub seconds: f64,
 }
 
+/// Content tokens of a text as the encoder's own tokenizer reads it (for late chunking).
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct TokenIds {
+    /// Token ids, no special tokens.
+    pub ids: Vec<u32>,
+    /// Byte range of each token in the text.
+    pub offsets: Vec<std::ops::Range<usize>>,
+}
+
+/// One encoder pass of late chunking: content ids (the encoder wraps them in its special
+/// tokens) and the spans of output rows to pool, counted with the specials (row 0 is the
+/// first special token).
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct SpanPass {
+    /// Content ids of the pass (prefix included), no specials.
+    pub ids: Vec<u32>,
+    /// Rows to pool into one vector each; never empty.
+    pub spans: Vec<std::ops::Range<usize>>,
+}
+
 /// Something that turns texts into vectors.
 pub trait Embedder: Send + Sync {
     /// Width of the vectors.
@@ -116,6 +136,26 @@ pub trait Embedder: Send + Sync {
     fn count_tokens(&self, text: &str) -> Result<usize, EmbedError>;
     /// Counters so far.
     fn stats(&self) -> EmbedStats;
+    /// Content tokens of `text` with byte offsets, or `None` when this embedder cannot show
+    /// its token outputs (then late chunking is not available with it).
+    fn token_ids(&self, _text: &str) -> Result<Option<TokenIds>, EmbedError> {
+        Ok(None)
+    }
+    /// Special tokens the encoder puts before and after the content of every input.
+    fn specials(&self) -> (usize, usize) {
+        (1, 1)
+    }
+    /// Most tokens one input may hold, specials included.
+    fn max_input_tokens(&self) -> usize {
+        512
+    }
+    /// Run each pass through the encoder once and pool each of its spans of output rows with
+    /// the embedder's token pooling and normalisation: `out[pass][span]`.
+    fn embed_spans(&self, _passes: &[SpanPass]) -> Result<Vec<Vec<Vec<f32>>>, EmbedError> {
+        Err(EmbedError::Unsupported(
+            "this encoder does not expose its token outputs, so it cannot pool spans of a longer pass (late chunking)".into(),
+        ))
+    }
 }
 
 /// Deterministic, model-free embedder for tests: hashed bag of lower-case words, L2-normalised.
@@ -140,13 +180,8 @@ impl Embedder for HashEmbedder {
                     .split(|c: char| !c.is_alphanumeric())
                     .filter(|w| !w.is_empty())
                 {
-                    let h = w
-                        .to_lowercase()
-                        .bytes()
-                        .fold(0xcbf29ce484222325u64, |h, b| {
-                            (h ^ b as u64).wrapping_mul(0x100000001b3)
-                        });
-                    v[(h % self.dim as u64) as usize] += if h >> 63 == 0 { 1.0 } else { -1.0 };
+                    let h = hash_word(w);
+                    v[(h % self.dim as u64) as usize] += if h >> 31 == 0 { 1.0 } else { -1.0 };
                 }
                 crate::pool::normalize(v)
             })
@@ -158,4 +193,58 @@ impl Embedder for HashEmbedder {
     fn stats(&self) -> EmbedStats {
         EmbedStats::default()
     }
+    fn token_ids(&self, text: &str) -> Result<Option<TokenIds>, EmbedError> {
+        // Words are the tokens; an id is the word's hash, so a row depends on its word alone.
+        let mut out = TokenIds::default();
+        let mut start = None;
+        for (i, c) in text
+            .char_indices()
+            .chain(std::iter::once((text.len(), ' ')))
+        {
+            match (start, c.is_alphanumeric()) {
+                (None, true) => start = Some(i),
+                (Some(s), false) => {
+                    out.ids.push(hash_word(&text[s..i]) as u32);
+                    out.offsets.push(s..i);
+                    start = None;
+                }
+                _ => {}
+            }
+        }
+        Ok(Some(out))
+    }
+    fn embed_spans(&self, passes: &[SpanPass]) -> Result<Vec<Vec<Vec<f32>>>, EmbedError> {
+        // Specials are zero rows; a content row is its id's signed one-hot, so the pooled span
+        // is the hashed bag of its words, as [`Embedder::embed`] gives for the span's text.
+        Ok(passes
+            .iter()
+            .map(|p| {
+                p.spans
+                    .iter()
+                    .map(|span| {
+                        let mut v = vec![0f32; self.dim];
+                        for row in span.clone() {
+                            if let Some(&id) = row.checked_sub(1).and_then(|k| p.ids.get(k)) {
+                                let h = id as u64;
+                                v[(h % self.dim as u64) as usize] +=
+                                    if h >> 31 == 0 { 1.0 } else { -1.0 };
+                            }
+                        }
+                        crate::pool::normalize(v)
+                    })
+                    .collect()
+            })
+            .collect())
+    }
+}
+
+/// FNV-1a of a lower-cased word, folded to 32 bits.
+fn hash_word(w: &str) -> u64 {
+    let h = w
+        .to_lowercase()
+        .bytes()
+        .fold(0xcbf29ce484222325u64, |h, b| {
+            (h ^ b as u64).wrapping_mul(0x100000001b3)
+        });
+    (h ^ (h >> 32)) & 0xffff_ffff
 }
