@@ -145,7 +145,16 @@ fn debian_faq_retrieval() {
                       vectors: &[Vec<Vec<f32>>]| {
         let mut p = plan.clone();
         p.profile.pool.chunks = agg;
-        engine::score_plan(&corpus, &refs, ref_vectors, &p, chunks.to_vec(), vectors, 0).summary
+        engine::score_plan(
+            &corpus,
+            &refs,
+            ref_vectors,
+            &p,
+            chunks.to_vec(),
+            vectors,
+            &Default::default(),
+        )
+        .summary
     };
     let mut results = Vec::new();
     let truncation = mk(256, Boundary::Head, 0, ChunkPooling::First);
@@ -330,7 +339,7 @@ fn self_retrieval_against_the_faq_questions() {
                 &rp,
                 chunks.clone(),
                 &vectors,
-                0,
+                &Default::default(),
             );
             let pe = probes::score(
                 &corpus,

@@ -5,13 +5,6 @@ mod common;
 use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, Engine, Precision, TokenPooling};
 use kerf::pool::cosine;
 
-fn fixture(name: &str) -> serde_json::Value {
-    serde_json::from_str(
-        &std::fs::read_to_string(common::repo().join("tests/fixtures").join(name)).unwrap(),
-    )
-    .unwrap()
-}
-
 fn encoder(max_input_tokens: usize) -> BertEmbedder {
     BertEmbedder::load(
         &common::model_dir(),
@@ -26,7 +19,7 @@ fn encoder(max_input_tokens: usize) -> BertEmbedder {
 #[test]
 fn vectors_match_sentence_transformers() {
     // Fixture: tests/reference/st_vectors.py (sentence-transformers, max_seq_length 256).
-    let f = fixture("st_vectors.json");
+    let f = common::fixture("st_vectors.json");
     let e = encoder(256);
     let items = f["texts"].as_array().unwrap();
     assert!(items.len() >= 20);
@@ -70,7 +63,7 @@ fn vectors_match_sentence_transformers() {
 }
 
 fn fixture_texts() -> Vec<String> {
-    fixture("st_vectors.json")["texts"]
+    common::fixture("st_vectors.json")["texts"]
         .as_array()
         .unwrap()
         .iter()
@@ -211,7 +204,9 @@ fn lee_correlation_matches_sentence_transformers() {
     let vx: f64 = xs.iter().map(|x| (x - mx).powi(2)).sum();
     let vy: f64 = ys.iter().map(|y| (y - my).powi(2)).sum();
     let r = cov / (vx * vy).sqrt();
-    let want = fixture("lee_st.json")["pearson_256"].as_f64().unwrap();
+    let want = common::fixture("lee_st.json")["pearson_256"]
+        .as_f64()
+        .unwrap();
     println!("Lee Pearson: kerf {r:.4}, sentence-transformers {want:.4}");
     // Tolerance from the issue: within 0.005 of the sentence-transformers figure.
     assert!(

@@ -11,13 +11,6 @@ use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, Engine};
 use kerf::late::{self, LateDocument, LateOptions};
 use kerf::pool::cosine;
 
-fn fixture(name: &str) -> serde_json::Value {
-    serde_json::from_str(
-        &std::fs::read_to_string(common::repo().join("tests/fixtures").join(name)).unwrap(),
-    )
-    .unwrap()
-}
-
 fn encoder(engine: Engine) -> BertEmbedder {
     BertEmbedder::load(
         &common::model_dir(),
@@ -61,7 +54,7 @@ fn pooled_spans_match_sentence_transformers_token_embeddings() {
     // passages (one pass each, up to 484 tokens), each paragraph's rows mean-pooled, the first
     // taking [CLS] and the last [SEP]. Tolerance: float32 sums in another order (as
     // tests/embed_reference.rs, whose measured worst is about 0.99999).
-    let f = fixture("late_st.json");
+    let f = common::fixture("late_st.json");
     let items = f["texts"].as_array().unwrap();
     let ranges: Vec<Vec<Range<usize>>> = items
         .iter()
@@ -74,20 +67,13 @@ fn pooled_spans_match_sentence_transformers_token_embeddings() {
                 .collect()
         })
         .collect();
-    let docs: Vec<LateDocument<'_>> = items
-        .iter()
-        .zip(&ranges)
-        .map(|(t, r)| LateDocument {
-            text: t["text"].as_str().unwrap(),
-            chunks: r,
-            hole: None,
-        })
-        .collect();
-    assert!(ranges.iter().map(Vec::len).sum::<usize>() >= 30);
+    let docs = late::documents(items.iter().map(|t| t["text"].as_str().unwrap()), &ranges);
+    let chunks: usize = ranges.iter().map(Vec::len).sum();
+    assert!(chunks >= 30);
     for engine in [Engine::Packed, Engine::Candle] {
         let e = encoder(engine);
         let (got, report) = late_vectors(&e, "", &docs, &FULL, None);
-        assert_eq!(report.embedded, 35);
+        assert_eq!(report.embedded, chunks);
         let mut worst = 1.0f32;
         for (t, vs) in items.iter().zip(&got) {
             for (want, v) in t["vectors"].as_array().unwrap().iter().zip(vs) {
@@ -109,7 +95,7 @@ fn pooled_spans_match_sentence_transformers_token_embeddings() {
 fn a_chunk_that_is_the_whole_pass_equals_ordinary_pooling() {
     // Texts from tests/fixtures/st_vectors.json (accents, CJK, emoji, CRLF, a 300-character
     // word); each is one chunk, so late chunking must pool exactly what ordinary chunking pools.
-    let f = fixture("st_vectors.json");
+    let f = common::fixture("st_vectors.json");
     let texts: Vec<&str> = f["texts"]
         .as_array()
         .unwrap()
@@ -124,15 +110,7 @@ fn a_chunk_that_is_the_whole_pass_equals_ordinary_pooling() {
             .iter()
             .map(|t| std::iter::once(0..t.len()).collect())
             .collect();
-        let docs: Vec<LateDocument<'_>> = texts
-            .iter()
-            .zip(&ranges)
-            .map(|(t, r)| LateDocument {
-                text: t,
-                chunks: r,
-                hole: None,
-            })
-            .collect();
+        let docs = late::documents(texts.iter().copied(), &ranges);
         let (late, _) = late_vectors(&e, prefix, &docs, &FULL, None);
         let with_prefix: Vec<String> = texts.iter().map(|t| format!("{prefix}{t}")).collect();
         let refs: Vec<&str> = with_prefix.iter().map(String::as_str).collect();
@@ -213,15 +191,7 @@ fn each_chunk_span_holds_exactly_the_chunks_own_tokens() {
 fn long_documents_take_several_passes_and_the_cache_serves_them_again() {
     let e = encoder(Engine::Packed);
     let (texts, ranges) = faq_chunks(2);
-    let docs: Vec<LateDocument<'_>> = texts
-        .iter()
-        .zip(&ranges)
-        .map(|(t, r)| LateDocument {
-            text: t,
-            chunks: r,
-            hole: None,
-        })
-        .collect();
+    let docs = late::documents(texts.iter().map(String::as_str), &ranges);
     let tmp = tempfile::tempdir().unwrap();
     let cache = kerf::cache::VectorCache::open(&tmp.path().join("c.sqlite")).unwrap();
     let chunks: usize = ranges.iter().map(Vec::len).sum();
@@ -233,12 +203,23 @@ fn long_documents_take_several_passes_and_the_cache_serves_them_again() {
     // More than one pass per chapter: the encoder sees more tokens than the chapters hold (each
     // pass re-reads its left context and the partial chunk the pass before could not hold),
     // but well under twice as many.
-    let pass_tokens = late::pass_tokens(&e, "", &docs, &FULL).unwrap();
-    let content: usize = texts
-        .iter()
-        .map(|t| e.token_ids(t).unwrap().unwrap().ids.len())
-        .sum();
-    assert_eq!(r1.embedded_tokens, pass_tokens);
+    // The passes counted from the pure planning functions: 510 content tokens and 2 specials.
+    let (mut pass_tokens, mut content, mut passes) = (0, 0, 0);
+    for (t, r) in texts.iter().zip(&ranges) {
+        let tokens = e.token_ids(t).unwrap().unwrap();
+        let spans = late::chunk_spans(&tokens.offsets, r, 510);
+        for p in late::passes(tokens.ids.len(), &spans, 510, FULL.overlap) {
+            pass_tokens += p.tokens.len() + 2;
+            passes += 1;
+        }
+        content += tokens.ids.len();
+    }
+    assert!(passes > 2 * texts.len(), "{passes} passes");
+    assert_eq!(
+        (r1.input_tokens, r1.embedded_tokens),
+        (pass_tokens, pass_tokens)
+    );
+    assert_eq!((r2.input_tokens, r2.embedded_tokens), (pass_tokens, 0));
     assert!(
         pass_tokens > content && pass_tokens < content * 3 / 2,
         "{pass_tokens} vs {content}"
@@ -289,17 +270,27 @@ fn the_binary_embeds_and_compares_with_a_late_chunking_profile() {
         "{shown}"
     );
     let base_path = common::repo().join("profiles/sentences-128.toml");
+    let mut logs = Vec::new();
     for (profile, out) in [
         (base_path.to_str().unwrap(), "alone"),
         ("late.toml", "late"),
     ] {
-        ok(&kerf_in(
+        let o = kerf_in(
             d,
             &[
                 "embed", "-p", profile, "corpus", "--out", out, "--cache", "c.sqlite",
             ],
-        ));
+        );
+        ok(&o);
+        logs.push(String::from_utf8_lossy(&o.stderr).into_owned());
     }
+    // The late run embedded every pass afresh; its encoder tokens, as `embed` reports them.
+    let late_tokens: usize = logs[1]
+        .split(" tokens through the encoder")
+        .next()
+        .and_then(|h| h.rsplit(' ').next())
+        .and_then(|n| n.parse().ok())
+        .unwrap_or_else(|| panic!("no token count in {:?}", logs[1]));
     let read = |out: &str| {
         kerf::store::read_npy_f32(&std::fs::read(d.join(out).join("chunk_vectors.npy")).unwrap())
             .unwrap()
@@ -333,10 +324,21 @@ fn the_binary_embeds_and_compares_with_a_late_chunking_profile() {
         ],
     ));
     let v: serde_json::Value = serde_json::from_str(&o).unwrap();
-    let text = v.to_string();
+    let plan = v["plans"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["profile"]["pool"]["context"] == 512)
+        .unwrap_or_else(|| panic!("no late plan in {v}"));
+    // compare costs the plan at the tokens the embedding job put through the encoder.
+    assert_eq!(plan["input_tokens"], late_tokens, "{plan}");
+    assert_eq!(plan["chunks"], ra, "{plan}");
+    let probes = &plan["self_retrieval"];
+    assert_eq!(probes["summary"]["queries"], 12, "{probes}");
+    // Each probe re-runs at least one holed pass and re-pools at least the chunk that held it.
+    assert!(probes["embedded"].as_u64().unwrap() >= 12, "{probes}");
     assert!(
-        text.contains("late512") || text.contains("\"context\":512"),
-        "{text}"
+        probes["holed_tokens"].as_u64().unwrap() >= 12 * 16,
+        "{probes}"
     );
-    assert!(text.contains("mrr"), "{text}");
 }

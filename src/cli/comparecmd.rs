@@ -217,19 +217,15 @@ pub fn run(a: CompareArgs) -> Result<()> {
         if let Some(b) = bar {
             b.finish_and_clear();
         }
-        let late_tokens = engine::late_input_tokens(&corpus, &chunks, &l.plan, e.as_ref())?;
-        let mut eval = engine::score_plan(
+        let eval = engine::score_plan(
             &corpus,
             &references,
             &rv,
             &l.plan,
             chunks,
             &vectors,
-            embedded,
+            &embedded,
         );
-        if let Some(t) = late_tokens {
-            eval.input_tokens = t;
-        }
         let probe_eval = match &probe_set {
             Some(set) => {
                 let pv = engine::embed_refs(

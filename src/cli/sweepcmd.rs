@@ -273,7 +273,7 @@ pub fn run(a: SweepArgs) -> Result<()> {
         let chunks = engine::cut_corpus(&corpus, &resolved, &l.counter);
         let before = e.stats();
         let t0 = Instant::now();
-        let (vectors, n_new) = engine::embed_chunks(
+        let (vectors, report) = engine::embed_chunks(
             &corpus,
             &chunks,
             &resolved,
@@ -286,32 +286,28 @@ pub fn run(a: SweepArgs) -> Result<()> {
             t0.elapsed().as_secs_f64(),
             after.real_tokens - before.real_tokens,
         );
-        let late_tokens = engine::late_input_tokens(&corpus, &chunks, &resolved, e.as_ref())?;
         let key = rate_key(first);
         match measured.iter_mut().find(|m| m.0 == key) {
             Some(m) => (m.1, m.2) = (m.1 + seconds, m.2 + tokens),
             None => measured.push((key, seconds, tokens)),
         }
         if members[0] != base_index {
-            embedded += n_new;
+            embedded += report.embedded;
         }
         let padding = after.padded_tokens.saturating_sub(after.real_tokens)
             - before.padded_tokens.saturating_sub(before.real_tokens);
         for &pi in members {
             let mut rp = resolved.clone();
             rp.profile = plans[pi].clone();
-            let mut ev = engine::score_plan(
+            let ev = engine::score_plan(
                 &corpus,
                 &references,
                 &rv,
                 &rp,
                 chunks.clone(),
                 &vectors,
-                n_new,
+                &report,
             );
-            if let Some(t) = late_tokens {
-                ev.input_tokens = t;
-            }
             let n_chunks: usize = ev.chunks.iter().map(Vec::len).sum();
             if pi != base_index {
                 scored += n_chunks;

@@ -25,6 +25,13 @@ pub fn testdata(rel: &str) -> PathBuf {
     p
 }
 
+/// A committed JSON fixture from tests/fixtures (made by a script in tests/reference).
+pub fn fixture(name: &str) -> serde_json::Value {
+    let path = repo().join("tests/fixtures").join(name);
+    serde_json::from_str(&std::fs::read_to_string(&path).unwrap())
+        .unwrap_or_else(|e| panic!("{}: {e}", path.display()))
+}
+
 /// The repository root.
 pub fn repo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))

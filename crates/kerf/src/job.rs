@@ -86,6 +86,9 @@ impl Default for JobSettings {
 pub struct CacheReport {
     /// Inputs asked for.
     pub inputs: usize,
+    /// Encoder-input tokens of every input asked for, cached or not, repeats included: what the
+    /// inputs cost to embed from nothing.
+    pub input_tokens: usize,
     /// Distinct inputs among them.
     pub distinct: usize,
     /// Distinct inputs found in the cache.
@@ -99,8 +102,10 @@ pub struct CacheReport {
 }
 
 impl CacheReport {
-    fn add(&mut self, o: &CacheReport) {
+    /// Add another report's counts to this one.
+    pub fn add(&mut self, o: &CacheReport) {
         self.inputs += o.inputs;
+        self.input_tokens += o.input_tokens;
         self.distinct += o.distinct;
         self.cached += o.cached;
         self.embedded += o.embedded;
@@ -193,6 +198,7 @@ pub fn embed_cached_until(
         .collect();
     let mut report = CacheReport {
         inputs: inputs.len(),
+        input_tokens: inputs.iter().map(|i| i.1).sum(),
         distinct: distinct.len(),
         cached: distinct.len() - misses.len(),
         ..Default::default()
@@ -465,16 +471,8 @@ impl EmbedJob<'_> {
                     .iter()
                     .map(|d| d.records.iter().map(|r| r.bytes[0]..r.bytes[1]).collect())
                     .collect();
-                let docs: Vec<crate::late::LateDocument<'_>> = block
-                    .iter()
-                    .zip(&ranges)
-                    .map(|(d, r)| crate::late::LateDocument {
-                        text: &d.text,
-                        chunks: r,
-                        hole: None,
-                    })
-                    .collect();
-                let (vectors, cache_report) = crate::late::embed_documents(
+                let docs = crate::late::documents(block.iter().map(|d| d.text.as_str()), &ranges);
+                let (vectors, cache_report) = crate::late::embed_chunks(
                     self.embedder,
                     self.cache,
                     prefix,
@@ -483,14 +481,6 @@ impl EmbedJob<'_> {
                     self.settings.batch_tokens,
                     &mut tell,
                     stop,
-                )?;
-                let vectors = crate::late::complete(
-                    self.embedder,
-                    self.cache,
-                    prefix,
-                    &docs,
-                    vectors,
-                    self.settings.batch_tokens,
                 )?;
                 (vectors.into_iter().flatten().collect(), cache_report)
             }

@@ -67,7 +67,8 @@ pub fn chunk_spans(
 
 /// Passes of at most `capacity` content tokens over a document of `n` tokens whose chunks hold
 /// `spans` (ascending, each no longer than `capacity`). Every chunk with tokens lands in exactly
-/// one pass that holds all of its tokens; chunks without tokens land in none.
+/// one pass that holds all of its tokens; a chunk without tokens may sit in a pass's run of
+/// chunks but has no rows to pool.
 pub fn passes(n: usize, spans: &[Range<usize>], capacity: usize, overlap: usize) -> Vec<Pass> {
     let mut out = Vec::new();
     let mut i = 0;
@@ -93,16 +94,11 @@ pub fn passes(n: usize, spans: &[Range<usize>], capacity: usize, overlap: usize)
         {
             j += 1;
         }
-        // Trailing chunks without tokens belong to no pass.
-        let mut last = j;
-        while last > i + 1 && spans[last - 1].is_empty() {
-            last -= 1;
-        }
         out.push(Pass {
             tokens: start..end,
-            chunks: i..last,
+            chunks: i..j,
         });
-        i = j.max(i + 1);
+        i = j;
     }
     out
 }
@@ -192,39 +188,31 @@ pub fn plan_document(
                 .filter(|t| !cut.contains(t))
                 .map(|t| tokens.ids[t]),
         );
-        // A row's place after the hole's tokens are taken out.
-        let shift = |row: usize| -> usize {
-            let t = row; // a content-row index relative to the document
+        // A document token's place once the hole's tokens are taken out.
+        let shift = |t: usize| -> usize {
             if t >= cut.end {
                 t - cut.len()
-            } else if t > cut.start {
-                cut.start
             } else {
-                t
+                t.min(cut.start)
             }
+        };
+        let local = Pass {
+            tokens: pass.tokens.start..shift(pass.tokens.end),
+            chunks: pass.chunks.clone(),
         };
         let mut input = SpanPass {
             ids,
             spans: Vec::new(),
         };
         let mut idx = Vec::new();
-        for k in pass.chunks.clone() {
-            let span = &spans[k];
-            if span.is_empty() {
-                continue;
+        for k in pass.chunks {
+            let kept = shift(spans[k].start)..shift(spans[k].end);
+            if !kept.is_empty() {
+                input
+                    .spans
+                    .push(rows_of(&local, &kept, specials, prefix_ids.len()));
+                idx.push(k);
             }
-            let kept = shift(span.start)..shift(span.end);
-            if kept.is_empty() {
-                continue;
-            }
-            let local = Pass {
-                tokens: pass.tokens.start..shift(pass.tokens.end),
-                chunks: pass.chunks.clone(),
-            };
-            input
-                .spans
-                .push(rows_of(&local, &kept, specials, prefix_ids.len()));
-            idx.push(k);
         }
         if input.spans.is_empty() {
             continue;
@@ -257,11 +245,79 @@ pub struct LateDocument<'a> {
     pub hole: Option<&'a Range<usize>>,
 }
 
+/// Each chunk's byte range, per document.
+pub fn byte_ranges(chunks: &[Vec<crate::split::Chunk>]) -> Vec<Vec<Range<usize>>> {
+    chunks
+        .iter()
+        .map(|cs| cs.iter().map(|c| c.byte_range.clone()).collect())
+        .collect()
+}
+
+/// The documents of `texts` with their chunks' byte ranges, no hole.
+pub fn documents<'a>(
+    texts: impl IntoIterator<Item = &'a str>,
+    ranges: &'a [Vec<Range<usize>>],
+) -> Vec<LateDocument<'a>> {
+    texts
+        .into_iter()
+        .zip(ranges)
+        .map(|(text, chunks)| LateDocument {
+            text,
+            chunks,
+            hole: None,
+        })
+        .collect()
+}
+
+/// The passes of every document (`(document, pass)`), tokenized once with the embedder's own
+/// tokenizer, and the embedder's specials.
+fn plan_all(
+    embedder: &dyn Embedder,
+    prefix: &str,
+    docs: &[LateDocument<'_>],
+    options: &LateOptions,
+) -> Result<Vec<(usize, PlannedPass)>, JobError> {
+    let token_ids = |text: &str| {
+        embedder.token_ids(text)?.ok_or_else(|| {
+            JobError::Embed(EmbedError::Unsupported(
+                "late chunking ([pool] context) needs an encoder that shows its token outputs; this one does not".into(),
+            ))
+        })
+    };
+    let prefix_ids = if prefix.is_empty() {
+        Vec::new()
+    } else {
+        token_ids(prefix)?.ids
+    };
+    let options = LateOptions {
+        context: options.context.min(embedder.max_input_tokens()),
+        ..*options
+    };
+    let mut planned = Vec::new();
+    for (d, doc) in docs.iter().enumerate() {
+        let tokens = token_ids(doc.text)?;
+        planned.extend(
+            plan_document(
+                &tokens,
+                &prefix_ids,
+                doc.chunks,
+                &options,
+                embedder.specials(),
+                doc.hole,
+            )
+            .into_iter()
+            .map(|p| (d, p)),
+        );
+    }
+    Ok(planned)
+}
+
 /// Vectors of every chunk of every document under late chunking, through the cache:
 /// `out[doc][chunk]`, `None` for a chunk that has no tokens left (emptied by a hole, or a
 /// chunk the tokenizer gives nothing for). With a hole, only chunks of the passes that meet it
 /// are returned (the others are `None`). Passes missing from the cache run in batches of at
-/// most `batch_tokens` tokens, each stored as soon as it is done.
+/// most `batch_tokens` tokens, each stored as soon as it is done. The report's `input_tokens`
+/// counts every pass, cached or not: the plan's encoder cost.
 #[allow(clippy::too_many_arguments)]
 pub fn embed_documents(
     embedder: &dyn Embedder,
@@ -273,35 +329,7 @@ pub fn embed_documents(
     progress: &mut dyn FnMut(usize, usize),
     stop: &AtomicBool,
 ) -> Result<(PartialVectors, CacheReport), JobError> {
-    let unsupported = || {
-        JobError::Embed(EmbedError::Unsupported(
-            "late chunking ([pool] context) needs an encoder that shows its token outputs; this one does not".into(),
-        ))
-    };
-    let prefix_ids = if prefix.is_empty() {
-        Vec::new()
-    } else {
-        embedder.token_ids(prefix)?.ok_or_else(unsupported)?.ids
-    };
-    let specials = embedder.specials();
-    let options = LateOptions {
-        context: options.context.min(embedder.max_input_tokens()),
-        ..*options
-    };
-    let mut planned: Vec<(usize, PlannedPass)> = Vec::new();
-    for (d, doc) in docs.iter().enumerate() {
-        let tokens = embedder.token_ids(doc.text)?.ok_or_else(unsupported)?;
-        for p in plan_document(
-            &tokens,
-            &prefix_ids,
-            doc.chunks,
-            &options,
-            specials,
-            doc.hole,
-        ) {
-            planned.push((d, p));
-        }
-    }
+    let planned = plan_all(embedder, prefix, docs, options)?;
     let fingerprint = embedder.fingerprint();
     let keys: Vec<[u8; 32]> = planned.iter().flat_map(|(_, p)| p.keys.clone()).collect();
     let mut found: HashMap<[u8; 32], Vec<f32>> = HashMap::new();
@@ -312,7 +340,8 @@ pub fn embed_documents(
             }
         }
     }
-    let cost = |p: &PlannedPass| p.input.ids.len() + specials.0 + specials.1;
+    let (lead, tail) = embedder.specials();
+    let cost = |p: &PlannedPass| p.input.ids.len() + lead + tail;
     let misses: Vec<usize> = (0..planned.len())
         .filter(|&i| planned[i].1.keys.iter().any(|k| !found.contains_key(k)))
         .collect();
@@ -320,6 +349,7 @@ pub fn embed_documents(
     let mut done = total - misses.iter().map(|&i| cost(&planned[i].1)).sum::<usize>();
     let mut report = CacheReport {
         inputs: keys.len(),
+        input_tokens: total,
         distinct: keys.len(),
         cached: planned
             .iter()
@@ -385,58 +415,31 @@ pub fn embed_documents(
     Ok((out, report))
 }
 
-/// Encoder tokens late chunking spends on `docs` (every pass, specials and prefix included):
-/// the plan's cost, comparable to the summed inputs of ordinary chunking.
-pub fn pass_tokens(
-    embedder: &dyn Embedder,
-    prefix: &str,
-    docs: &[LateDocument<'_>],
-    options: &LateOptions,
-) -> Result<usize, JobError> {
-    let unsupported = || {
-        JobError::Embed(EmbedError::Unsupported(
-            "late chunking needs an encoder that shows its token outputs".into(),
-        ))
-    };
-    let prefix_ids = if prefix.is_empty() {
-        Vec::new()
-    } else {
-        embedder.token_ids(prefix)?.ok_or_else(unsupported)?.ids
-    };
-    let specials = embedder.specials();
-    let options = LateOptions {
-        context: options.context.min(embedder.max_input_tokens()),
-        ..*options
-    };
-    let mut total = 0;
-    for doc in docs {
-        let tokens = embedder.token_ids(doc.text)?.ok_or_else(unsupported)?;
-        total += plan_document(
-            &tokens,
-            &prefix_ids,
-            doc.chunks,
-            &options,
-            specials,
-            doc.hole,
-        )
-        .iter()
-        .map(|p| p.input.ids.len() + specials.0 + specials.1)
-        .sum::<usize>();
-    }
-    Ok(total)
-}
-
-/// Late-chunked vectors with every gap filled: a chunk that owns no token of the document's
-/// own tokenization (a piece cut inside a word whose token starts in the chunk before) is
-/// encoded alone, as ordinary chunking would, through the cache.
-pub fn complete(
+/// Every chunk's late-chunked vector (`docs` without holes): [`embed_documents`], then each
+/// chunk that owns no token of the document's own tokenization (a piece cut inside a word
+/// whose token starts in the chunk before) encoded alone, as ordinary chunking would, through
+/// the cache. The report covers both.
+#[allow(clippy::too_many_arguments)]
+pub fn embed_chunks(
     embedder: &dyn Embedder,
     cache: Option<&VectorCache>,
     prefix: &str,
     docs: &[LateDocument<'_>],
-    vectors: PartialVectors,
+    options: &LateOptions,
     batch_tokens: usize,
-) -> Result<Vec<Vec<Vec<f32>>>, JobError> {
+    progress: &mut dyn FnMut(usize, usize),
+    stop: &AtomicBool,
+) -> Result<(crate::pool::ChunkVectors, CacheReport), JobError> {
+    let (vectors, mut report) = embed_documents(
+        embedder,
+        cache,
+        prefix,
+        docs,
+        options,
+        batch_tokens,
+        progress,
+        stop,
+    )?;
     let mut inputs: Vec<(&str, usize)> = Vec::new();
     for (d, vs) in docs.iter().zip(&vectors) {
         for (c, v) in d.chunks.iter().zip(vs) {
@@ -446,28 +449,31 @@ pub fn complete(
             }
         }
     }
-    let mut alone = if inputs.is_empty() {
-        Vec::new()
-    } else {
-        crate::job::embed_cached(
+    let mut alone = Vec::new().into_iter();
+    if !inputs.is_empty() {
+        let (v, r) = crate::job::embed_cached_until(
             embedder,
             cache,
             prefix,
             &inputs,
             batch_tokens,
             &mut |_, _| {},
-        )?
-        .0
+            stop,
+        )?;
+        report.add(&r);
+        alone = v.into_iter();
     }
-    .into_iter();
-    Ok(vectors
-        .into_iter()
-        .map(|vs| {
-            vs.into_iter()
-                .map(|v| v.unwrap_or_else(|| alone.next().expect("one vector per gap")))
-                .collect()
-        })
-        .collect())
+    Ok((
+        vectors
+            .into_iter()
+            .map(|vs| {
+                vs.into_iter()
+                    .map(|v| v.unwrap_or_else(|| alone.next().expect("one vector per gap")))
+                    .collect()
+            })
+            .collect(),
+        report,
+    ))
 }
 
 #[cfg(test)]

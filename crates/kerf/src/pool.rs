@@ -6,6 +6,9 @@
 //! All are pure functions over plain slices.
 pub use crate::profile::ChunkPooling;
 
+/// Vectors of every chunk of every document: `[doc][chunk]`.
+pub type ChunkVectors = Vec<Vec<Vec<f32>>>;
+
 /// Dot product.
 pub fn dot(a: &[f32], b: &[f32]) -> f32 {
     a.iter().zip(b).map(|(x, y)| x * y).sum()

@@ -11,7 +11,7 @@ use serde::Serialize;
 use super::metrics::{self, Summary};
 use super::refs::Reference;
 use crate::corpus::Document;
-use crate::job::{embed_cached, JobError};
+use crate::job::{embed_cached, CacheReport, JobError};
 use crate::plan::ResolvedPlan;
 use crate::pool::{self, ChunkPooling};
 use crate::split::{self, Chunk};
@@ -322,10 +322,11 @@ pub fn embed_refs(
 /// Tokens per encoder batch when compare, sweep and explore embed (as `kerf embed`'s default).
 pub const REF_BATCH_TOKENS: usize = 8192;
 
-/// Vectors of every chunk of every document: `[doc][chunk]`.
-pub type ChunkVectors = Vec<Vec<Vec<f32>>>;
+pub use crate::pool::ChunkVectors;
 
-/// Chunk vectors of a corpus under a plan, through the cache; also how many were embedded now.
+/// Chunk vectors of a corpus under a plan, through the cache, and what embedding them did
+/// (its `input_tokens` is the plan's encoder cost: every chunk input, or every late-chunking
+/// pass).
 pub fn embed_chunks(
     corpus: &Corpus,
     chunks: &[Vec<Chunk>],
@@ -333,41 +334,21 @@ pub fn embed_chunks(
     embedder: &dyn crate::embed::Embedder,
     cache: Option<&crate::cache::VectorCache>,
     progress: &mut dyn FnMut(usize, usize),
-) -> Result<(ChunkVectors, usize), JobError> {
+) -> Result<(ChunkVectors, CacheReport), JobError> {
+    let prefix = &plan.profile.cut.prefix;
     if let Some(late) = plan.profile.pool.late() {
-        let ranges: Vec<Vec<std::ops::Range<usize>>> = chunks
-            .iter()
-            .map(|cs| cs.iter().map(|c| c.byte_range.clone()).collect())
-            .collect();
-        let docs: Vec<crate::late::LateDocument<'_>> = corpus
-            .docs
-            .iter()
-            .zip(&ranges)
-            .map(|(d, r)| crate::late::LateDocument {
-                text: &d.text,
-                chunks: r,
-                hole: None,
-            })
-            .collect();
-        let (vectors, report) = crate::late::embed_documents(
+        let ranges = crate::late::byte_ranges(chunks);
+        let docs = crate::late::documents(corpus.docs.iter().map(|d| d.text.as_str()), &ranges);
+        return crate::late::embed_chunks(
             embedder,
             cache,
-            &plan.profile.cut.prefix,
+            prefix,
             &docs,
             &late,
             REF_BATCH_TOKENS,
             progress,
             &std::sync::atomic::AtomicBool::new(false),
-        )?;
-        let vectors = crate::late::complete(
-            embedder,
-            cache,
-            &plan.profile.cut.prefix,
-            &docs,
-            vectors,
-            REF_BATCH_TOKENS,
-        )?;
-        return Ok((vectors, report.embedded));
+        );
     }
     let inputs: Vec<(&str, usize)> = corpus
         .docs
@@ -382,43 +363,9 @@ pub fn embed_chunks(
             })
         })
         .collect();
-    let (flat, report) = embed_cached(
-        embedder,
-        cache,
-        &plan.profile.cut.prefix,
-        &inputs,
-        REF_BATCH_TOKENS,
-        progress,
-    )?;
-    Ok((unflatten(chunks, flat), report.embedded))
-}
-
-/// Encoder tokens of a late-chunking plan (its passes), or `None` for ordinary chunking, whose
-/// cost is the sum of its chunks' inputs (as [`score_plan`] counts).
-pub fn late_input_tokens(
-    corpus: &Corpus,
-    chunks: &[Vec<Chunk>],
-    plan: &ResolvedPlan,
-    embedder: &dyn crate::embed::Embedder,
-) -> Result<Option<usize>, JobError> {
-    let Some(late) = plan.profile.pool.late() else {
-        return Ok(None);
-    };
-    let ranges: Vec<Vec<std::ops::Range<usize>>> = chunks
-        .iter()
-        .map(|cs| cs.iter().map(|c| c.byte_range.clone()).collect())
-        .collect();
-    let docs: Vec<crate::late::LateDocument<'_>> = corpus
-        .docs
-        .iter()
-        .zip(&ranges)
-        .map(|(d, r)| crate::late::LateDocument {
-            text: &d.text,
-            chunks: r,
-            hole: None,
-        })
-        .collect();
-    crate::late::pass_tokens(embedder, &plan.profile.cut.prefix, &docs, &late).map(Some)
+    let (flat, report) =
+        embed_cached(embedder, cache, prefix, &inputs, REF_BATCH_TOKENS, progress)?;
+    Ok((unflatten(chunks, flat), report))
 }
 
 /// Cut, embed, score and measure one plan.
@@ -434,7 +381,7 @@ pub fn evaluate_plan(
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<PlanEval, JobError> {
     let chunks = cut_corpus(corpus, plan, counter);
-    let (vectors, embedded) = embed_chunks(corpus, &chunks, plan, embedder, cache, progress)?;
+    let (vectors, report) = embed_chunks(corpus, &chunks, plan, embedder, cache, progress)?;
     Ok(score_plan(
         corpus,
         refs,
@@ -442,11 +389,12 @@ pub fn evaluate_plan(
         plan,
         chunks,
         &vectors,
-        embedded,
+        &report,
     ))
 }
 
-/// Score already-embedded chunks under a plan's aggregation.
+/// Score already-embedded chunks under a plan's aggregation; `embedding` is what
+/// [`embed_chunks`] reported for them (cost and work done).
 pub fn score_plan(
     corpus: &Corpus,
     refs: &[Reference],
@@ -454,7 +402,7 @@ pub fn score_plan(
     plan: &ResolvedPlan,
     chunks: Vec<Vec<Chunk>>,
     vectors: &[Vec<Vec<f32>>],
-    embedded: usize,
+    embedding: &CacheReport,
 ) -> PlanEval {
     let scores = score_all(
         corpus,
@@ -464,19 +412,14 @@ pub fn score_plan(
         plan.profile.pool.chunks,
         plan.profile.pool.temperature,
     );
-    let input_tokens = chunks
-        .iter()
-        .flatten()
-        .map(|c| plan.input_tokens(c.content_tokens))
-        .sum();
     PlanEval {
         summary: summarize(corpus, refs, &scores),
         mean_expected: mean_expected_score(corpus, refs, &scores),
         plan: plan.clone(),
         chunks,
         scores,
-        input_tokens,
-        embedded,
+        input_tokens: embedding.input_tokens,
+        embedded: embedding.embedded,
     }
 }
 

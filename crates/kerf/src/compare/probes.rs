@@ -383,10 +383,7 @@ fn holed_in_context(
     embedder: &dyn Embedder,
     cache: Option<&crate::cache::VectorCache>,
 ) -> Result<Holed, JobError> {
-    let ranges: Vec<Vec<Range<usize>>> = chunks
-        .iter()
-        .map(|cs| cs.iter().map(|c| c.byte_range.clone()).collect())
-        .collect();
+    let ranges = crate::late::byte_ranges(chunks);
     let docs: Vec<crate::late::LateDocument<'_>> = set
         .probes
         .iter()
@@ -396,7 +393,6 @@ fn holed_in_context(
             hole: Some(&p.bytes),
         })
         .collect();
-    let mut total = 0;
     let (vectors, report) = crate::late::embed_documents(
         embedder,
         cache,
@@ -404,7 +400,7 @@ fn holed_in_context(
         &docs,
         late,
         REF_BATCH_TOKENS,
-        &mut |_, t| total = t,
+        &mut |_, _| {},
         &std::sync::atomic::AtomicBool::new(false),
     )?;
     let replacements = set
@@ -430,7 +426,7 @@ fn holed_in_context(
                 .collect()
         })
         .collect();
-    Ok((replacements, report.embedded, total))
+    Ok((replacements, report.embedded, report.input_tokens))
 }
 
 /// A plan judged by its probes.

@@ -58,6 +58,20 @@ fn special_layout(tokenizer: &Tokenizer) -> Result<(Vec<u32>, Vec<u32>), String>
     Ok((ids[..lead].to_vec(), ids[ids.len() - tail..].to_vec()))
 }
 
+/// Each input's rows (`[len, dim]`) in the packed engine's output, which holds them one after
+/// another with no padding.
+fn rows_per_input<'a>(
+    hidden: &'a [f32],
+    ids: &'a [&[u32]],
+    dim: usize,
+) -> impl Iterator<Item = &'a [f32]> {
+    ids.iter().scan(0, move |off, s| {
+        let rows = &hidden[*off * dim..(*off + s.len()) * dim];
+        *off += s.len();
+        Some(rows)
+    })
+}
+
 fn file_err(path: &Path, reason: impl ToString) -> EmbedError {
     EmbedError::File {
         path: path.to_path_buf(),
@@ -311,27 +325,45 @@ impl BertEmbedder {
     }
 
     fn run_batch(&self, ids: &[&[u32]]) -> Result<Vec<Vec<f32>>, EmbedError> {
-        let rows = match &self.runner {
-            Runner::Candle(model) => self.run_candle(model, ids)?,
+        Ok(match &self.runner {
+            Runner::Candle(model) => self
+                .run_candle(model, ids)?
+                .into_iter()
+                .map(|v| self.finish(v))
+                .collect(),
             Runner::Packed(model) => {
                 // Each core runs its own share of the inputs (measured faster than sharing
                 // every product since the tiled product: notes/encoder-speed.md, step 10).
                 let hidden = model.forward_shared_out(ids, self.threads);
-                let mut out = Vec::with_capacity(ids.len());
-                let mut off = 0;
-                for s in ids {
-                    let rows = &hidden[off * self.dim..(off + s.len()) * self.dim];
-                    out.push(packed::pool_tokens(rows, self.dim, self.pooling));
-                    off += s.len();
-                }
-                out
+                rows_per_input(&hidden, ids, self.dim)
+                    .map(|rows| self.pool_rows(rows))
+                    .collect()
             }
-        };
-        Ok(if self.normalize {
-            rows.into_iter().map(crate::pool::normalize).collect()
-        } else {
-            rows
         })
+    }
+
+    /// One vector from token rows (`[len, dim]`): the token pooling, then normalisation.
+    fn pool_rows(&self, rows: &[f32]) -> Vec<f32> {
+        self.finish(packed::pool_tokens(rows, self.dim, self.pooling))
+    }
+
+    /// L2-normalise when the model folder (or the options) say so.
+    fn finish(&self, v: Vec<f32>) -> Vec<f32> {
+        if self.normalize {
+            crate::pool::normalize(v)
+        } else {
+            v
+        }
+    }
+
+    /// Add a call's counters to the totals.
+    fn record(&self, add: EmbedStats) {
+        let mut s = self.stats.lock().expect("stats lock");
+        s.inputs += add.inputs;
+        s.real_tokens += add.real_tokens;
+        s.padded_tokens += add.padded_tokens;
+        s.batches += add.batches;
+        s.seconds += add.seconds;
     }
 
     /// Final hidden rows of each input, `[len, dim]` flattened, in input order.
@@ -339,13 +371,9 @@ impl BertEmbedder {
         match &self.runner {
             Runner::Packed(model) => {
                 let hidden = model.forward_shared_out(ids, self.threads);
-                let mut out = Vec::with_capacity(ids.len());
-                let mut off = 0;
-                for s in ids {
-                    out.push(hidden[off * self.dim..(off + s.len()) * self.dim].to_vec());
-                    off += s.len();
-                }
-                Ok(out)
+                Ok(rows_per_input(&hidden, ids, self.dim)
+                    .map(<[f32]>::to_vec)
+                    .collect())
             }
             Runner::Candle(model) => {
                 // One input at a time: no padding, so no mask can leak into the rows.
@@ -472,12 +500,7 @@ impl Embedder for BertEmbedder {
         }
         stats.inputs = texts.len();
         stats.seconds = t0.elapsed().as_secs_f64();
-        let mut s = self.stats.lock().expect("stats lock");
-        s.inputs += stats.inputs;
-        s.real_tokens += stats.real_tokens;
-        s.padded_tokens += stats.padded_tokens;
-        s.batches += stats.batches;
-        s.seconds += stats.seconds;
+        self.record(stats);
         Ok(out
             .into_iter()
             .map(|v| v.expect("every input embedded"))
@@ -565,18 +588,7 @@ impl Embedder for BertEmbedder {
                 out.push(
                     p.spans
                         .iter()
-                        .map(|span| {
-                            let v = packed::pool_tokens(
-                                &r[span.start * self.dim..span.end * self.dim],
-                                self.dim,
-                                self.pooling,
-                            );
-                            if self.normalize {
-                                crate::pool::normalize(v)
-                            } else {
-                                v
-                            }
-                        })
+                        .map(|span| self.pool_rows(&r[span.start * self.dim..span.end * self.dim]))
                         .collect(),
                 );
             }
@@ -585,12 +597,9 @@ impl Embedder for BertEmbedder {
             stats.padded_tokens += real;
             start = end;
         }
-        let mut s = self.stats.lock().expect("stats lock");
-        s.inputs += passes.len();
-        s.real_tokens += stats.real_tokens;
-        s.padded_tokens += stats.padded_tokens;
-        s.batches += stats.batches;
-        s.seconds += t0.elapsed().as_secs_f64();
+        stats.inputs = passes.len();
+        stats.seconds = t0.elapsed().as_secs_f64();
+        self.record(stats);
         Ok(out)
     }
 }

@@ -174,17 +174,7 @@ impl Embedder for HashEmbedder {
     fn embed(&self, texts: &[&str]) -> Result<Vec<Vec<f32>>, EmbedError> {
         Ok(texts
             .iter()
-            .map(|t| {
-                let mut v = vec![0f32; self.dim];
-                for w in t
-                    .split(|c: char| !c.is_alphanumeric())
-                    .filter(|w| !w.is_empty())
-                {
-                    let h = hash_word(w);
-                    v[(h % self.dim as u64) as usize] += if h >> 31 == 0 { 1.0 } else { -1.0 };
-                }
-                crate::pool::normalize(v)
-            })
+            .map(|t| self.bag(words(t).map(|(_, w)| hash_word(w))))
             .collect())
     }
     fn count_tokens(&self, text: &str) -> Result<usize, EmbedError> {
@@ -195,42 +185,23 @@ impl Embedder for HashEmbedder {
     }
     fn token_ids(&self, text: &str) -> Result<Option<TokenIds>, EmbedError> {
         // Words are the tokens; an id is the word's hash, so a row depends on its word alone.
-        let mut out = TokenIds::default();
-        let mut start = None;
-        for (i, c) in text
-            .char_indices()
-            .chain(std::iter::once((text.len(), ' ')))
-        {
-            match (start, c.is_alphanumeric()) {
-                (None, true) => start = Some(i),
-                (Some(s), false) => {
-                    out.ids.push(hash_word(&text[s..i]) as u32);
-                    out.offsets.push(s..i);
-                    start = None;
-                }
-                _ => {}
-            }
-        }
-        Ok(Some(out))
+        let (offsets, ids) = words(text)
+            .map(|(at, w)| (at..at + w.len(), hash_word(w)))
+            .unzip();
+        Ok(Some(TokenIds { ids, offsets }))
     }
     fn embed_spans(&self, passes: &[SpanPass]) -> Result<Vec<Vec<Vec<f32>>>, EmbedError> {
-        // Specials are zero rows; a content row is its id's signed one-hot, so the pooled span
-        // is the hashed bag of its words, as [`Embedder::embed`] gives for the span's text.
+        // Specials (row 0 and the rows after the ids) add nothing, so the pooled span is the
+        // hashed bag of its words, as [`Embedder::embed`] gives for the span's text.
         Ok(passes
             .iter()
             .map(|p| {
                 p.spans
                     .iter()
                     .map(|span| {
-                        let mut v = vec![0f32; self.dim];
-                        for row in span.clone() {
-                            if let Some(&id) = row.checked_sub(1).and_then(|k| p.ids.get(k)) {
-                                let h = id as u64;
-                                v[(h % self.dim as u64) as usize] +=
-                                    if h >> 31 == 0 { 1.0 } else { -1.0 };
-                            }
-                        }
-                        crate::pool::normalize(v)
+                        self.bag(span.clone().filter_map(|row| {
+                            row.checked_sub(1).and_then(|k| p.ids.get(k)).copied()
+                        }))
                     })
                     .collect()
             })
@@ -238,13 +209,31 @@ impl Embedder for HashEmbedder {
     }
 }
 
+impl HashEmbedder {
+    /// The L2-normalised signed count vector of word ids.
+    fn bag(&self, ids: impl Iterator<Item = u32>) -> Vec<f32> {
+        let mut v = vec![0f32; self.dim];
+        for id in ids {
+            v[id as usize % self.dim] += if id >> 31 == 0 { 1.0 } else { -1.0 };
+        }
+        crate::pool::normalize(v)
+    }
+}
+
+/// The words of a text (runs of alphanumeric characters) with their byte offsets.
+fn words(text: &str) -> impl Iterator<Item = (usize, &str)> {
+    text.split(|c: char| !c.is_alphanumeric())
+        .filter(|w| !w.is_empty())
+        .map(move |w| (w.as_ptr() as usize - text.as_ptr() as usize, w))
+}
+
 /// FNV-1a of a lower-cased word, folded to 32 bits.
-fn hash_word(w: &str) -> u64 {
+fn hash_word(w: &str) -> u32 {
     let h = w
         .to_lowercase()
         .bytes()
         .fold(0xcbf29ce484222325u64, |h, b| {
             (h ^ b as u64).wrapping_mul(0x100000001b3)
         });
-    (h ^ (h >> 32)) & 0xffff_ffff
+    (h ^ (h >> 32)) as u32
 }
