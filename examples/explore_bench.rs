@@ -89,6 +89,8 @@ fn bench(name: &str, docs: Vec<Document>) {
         plan,
         refs: vec![],
         refs_origin: None,
+        probes: None,
+        probe_prefix: String::new(),
         problems: vec![],
         size,
     })

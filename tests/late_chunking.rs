@@ -258,12 +258,6 @@ fn the_binary_embeds_and_compares_with_a_late_chunking_profile() {
         base.replace("[pool]\n", "[pool]\ncontext = 512\n"),
     )
     .unwrap();
-    // The explorer embeds chunks alone, so it refuses the plan rather than mislead.
-    let refused = common::fails(&kerf_in(d, &["explore", "-p", "late.toml", "corpus"]));
-    assert!(
-        refused.contains("late.toml") && refused.contains("late chunking"),
-        "{refused}"
-    );
     let shown = ok(&kerf_in(d, &["profile", "show", "late.toml"]));
     assert!(
         shown.contains("late chunking: passes of up to 512 tokens"),

@@ -1,13 +1,15 @@
 //! Rendering the explorer into ratatui's TestBackend on demo-texts, with the model-free hash
 //! embedder standing in for the encoder (the tokenizer is the real model's).
 
-use kerf::cache::text_key;
+use std::sync::Arc;
+
 use kerf::compare::engine::Corpus;
+use kerf::compare::probes::{self, ProbeOptions};
 use kerf::corpus::{Document, Notice};
 use kerf::embed::{Embedder, HashEmbedder};
 use kerf::profile::Profile;
 use kerf_app::tui::action::Pane;
-use kerf_app::tui::worker::{Report, Request};
+use kerf_app::tui::worker::{answer, EmbedderFactory};
 use kerf_app::tui::{render, Action, App, AppInit};
 use ratatui::backend::TestBackend;
 use ratatui::buffer::Buffer;
@@ -36,6 +38,18 @@ fn demo_docs() -> Vec<Document> {
 }
 
 fn app_with(docs: Vec<Document>, with_refs: bool, size: (u16, u16)) -> App {
+    app_judged(docs, with_refs, 0, size, 0)
+}
+
+/// An explorer over `docs`, with the demo references or not, `probes` self-retrieval probes
+/// (0: none) and a late-chunking context (0: none).
+fn app_judged(
+    docs: Vec<Document>,
+    with_refs: bool,
+    probes: usize,
+    size: (u16, u16),
+    context: usize,
+) -> App {
     let (info, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
     let corpus = Corpus::new(docs, &counter).unwrap();
     let refs = if with_refs {
@@ -45,8 +59,15 @@ fn app_with(docs: Vec<Document>, with_refs: bool, size: (u16, u16)) -> App {
     };
     let mut profile = Profile::default();
     profile.cut.window = 256;
+    profile.pool.context = context;
     profile.name = "sentences-256".into();
     let plan = kerf::plan::resolve(&profile, &info, &counter, "test").unwrap();
+    let probes = (probes > 0).then(|| {
+        probes::draw(
+            &corpus,
+            &ProbeOptions::new(probes, 1, info.default_window()),
+        )
+    });
     App::new(AppInit {
         corpus,
         counter,
@@ -55,6 +76,8 @@ fn app_with(docs: Vec<Document>, with_refs: bool, size: (u16, u16)) -> App {
         plan,
         refs,
         refs_origin: None,
+        probes,
+        probe_prefix: String::new(),
         problems: vec![Notice {
             origin: "demo-texts/broken.txt".into(),
             message: "left out: invalid UTF-8 at byte 7".into(),
@@ -66,27 +89,17 @@ fn app_with(docs: Vec<Document>, with_refs: bool, size: (u16, u16)) -> App {
 
 /// Answer every queued job with the hash embedder, as the worker thread would.
 fn serve(app: &mut App) {
-    let e = HashEmbedder { dim: 64 };
+    let mut factory: EmbedderFactory = Box::new(|_| {
+        Ok::<_, anyhow::Error>(Arc::new(HashEmbedder { dim: 32 }) as Arc<dyn Embedder>)
+    });
     loop {
         let reqs = app.take_requests();
         if reqs.is_empty() {
-            return;
+            break;
         }
         for r in reqs {
-            if let Request::Embed(job) = r {
-                let inputs: Vec<String> = job
-                    .texts
-                    .iter()
-                    .map(|t| format!("{}{t}", job.prefix))
-                    .collect();
-                let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
-                app.update(Action::Worker(Report::Done {
-                    id: job.id,
-                    encoding: job.encoding,
-                    keys: job.texts.iter().map(|t| text_key(&job.prefix, t)).collect(),
-                    vectors: e.embed(&refs).unwrap(),
-                    embedded: job.texts.len(),
-                }));
+            if let Some(report) = answer(r, &mut factory) {
+                app.update(Action::Worker(report));
             }
         }
     }

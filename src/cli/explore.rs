@@ -40,6 +40,8 @@ pub struct ExploreArgs {
     #[arg(long, requires = "refs")]
     pub qrels: Option<PathBuf>,
     #[command(flatten)]
+    pub probes: super::probing::ProbeArgs,
+    #[command(flatten)]
     pub encoder: EncoderArgs,
     /// Embed with a model-free hashing embedder (for tests of the interface; similarity
     /// figures are meaningless).
@@ -120,15 +122,6 @@ pub fn run(a: ExploreArgs) -> Result<()> {
         p
     })
     .context("kerf explore needs the model's tokenizer even to cut (scripts/fetch-model fetches the default model)")?;
-    // The explorer embeds each chunk alone; showing ordinary vectors under a late-chunking
-    // plan would mislead, so such a plan is refused with the commands that do run it.
-    anyhow::ensure!(
-        loaded.plan.profile.pool.context == 0,
-        "{}: [pool] context = {} asks for late chunking, which explore does not run yet (it embeds each chunk alone); judge the plan with `kerf compare` or `kerf sweep --grid \"context=0,{}\"`, or set context = 0 to explore its cut",
-        a.plan.profile.as_ref().map_or("the plan".to_string(), |p| p.display().to_string()),
-        loaded.plan.profile.pool.context,
-        loaded.plan.profile.pool.context
-    );
     // Saved profiles must name the model the explorer runs, from wherever they are used.
     if a.plan.model.is_some() || loaded.plan.profile.model.folder.is_some() {
         loaded.plan.profile.model.folder =
@@ -158,6 +151,12 @@ pub fn run(a: ExploreArgs) -> Result<()> {
     if let Some(p) = &a.refs {
         refs::check_known(&references, &corpus.ids(), &p.display().to_string())?;
     }
+    // Without references, plans are judged by self-retrieval probes (said on stderr here and
+    // in the Fit pane); `--probes 0` turns them off.
+    let probe_set = match a.probes.wanted(a.refs.is_some()) {
+        Some(n) if n > 0 => Some(a.probes.draw(&corpus, n, loaded.info.default_window())?),
+        _ => None,
+    };
     let cache_path = if a.encoder.no_cache {
         None
     } else {
@@ -188,6 +187,8 @@ pub fn run(a: ExploreArgs) -> Result<()> {
         plan: loaded.plan,
         refs: references,
         refs_origin: a.refs.as_ref().map(|p| p.display().to_string()),
+        probes: probe_set,
+        probe_prefix: a.probes.probe_prefix.clone(),
         problems,
         size: (w, h),
     })?;

@@ -59,6 +59,10 @@ pub enum Action {
     TokensNext,
     /// Previous token pooling.
     TokensPrev,
+    /// Late-chunking context one step smaller (0: chunks encoded alone).
+    ContextDown,
+    /// Late-chunking context one step larger.
+    ContextUp,
     /// Next chunk aggregation.
     ChunksNext,
     /// Previous chunk aggregation.

@@ -8,8 +8,10 @@
 use std::collections::{HashMap, HashSet};
 use std::ops::Range;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 use kerf::compare::engine::{self, Corpus};
+use kerf::compare::probes::{self, ProbeEval, ProbeSet};
 use kerf::compare::refs::Reference;
 use kerf::compare::sweep::plan_name;
 use kerf::corpus::Notice;
@@ -25,15 +27,19 @@ use super::action::{Action, Pane};
 use super::board::{build_layout, BoardView};
 use super::geometry;
 use super::plans::FitView;
-use super::plans::{cut_state, score_state, Ident, PlanState, VecId};
+use super::plans::{chunk_vectors, cut_state, judge_key, ref_vectors, score_state};
+use super::plans::{Ident, PlanState, VecId};
 use super::stock::{self, SortOrder, StockView};
-use super::worker::{Job, Report, Request};
+use super::worker::{Input, Job, Judge, Report, Request};
 use kerf::profile::Encoding;
 
 /// Window sizes the w/W keys step through (those above the model's limit are skipped).
 pub const WINDOW_STEPS: [usize; 8] = [64, 128, 192, 256, 320, 384, 448, 512];
 /// Overlaps the o/O keys step through.
 pub const OVERLAP_STEPS: [usize; 10] = [0, 8, 16, 32, 48, 64, 96, 128, 192, 256];
+/// Late-chunking contexts the c/C keys step through (0 encodes each chunk alone; the others
+/// are kept when at least the window and within the model's positions).
+pub const CONTEXT_STEPS: [usize; 4] = [0, 256, 384, 512];
 /// Minimum last-chunk sizes the m/M keys step through.
 pub const MIN_CHUNK_STEPS: [usize; 7] = [0, 8, 16, 32, 48, 64, 96];
 const TOKEN_POOLINGS: [TokenPooling; 3] =
@@ -55,6 +61,10 @@ pub struct AppInit {
     pub refs: Vec<Reference>,
     /// Where the references came from, if anywhere.
     pub refs_origin: Option<String>,
+    /// Self-retrieval probes to judge plans by (beside the references, or alone).
+    pub probes: Option<ProbeSet>,
+    /// Text put before each probe sentence when it is embedded.
+    pub probe_prefix: String,
     /// Files skipped or documents left out, with the reason.
     pub problems: Vec<Notice>,
     /// Terminal size (columns, rows).
@@ -117,17 +127,23 @@ pub struct Totals {
 
 /// The explorer's whole state.
 pub struct App {
-    /// Documents, analysed.
-    pub corpus: Corpus,
+    /// Documents, analysed (shared with the worker).
+    pub corpus: Arc<Corpus>,
     counter: TokenCounter,
     /// Model limits.
     pub info: ModelInfo,
     /// Model name in the header.
     pub model_label: String,
-    /// References.
+    /// References: those the user gave, then one per probe.
     pub refs: Vec<Reference>,
-    /// Where they came from.
+    /// Where the given ones came from.
     pub refs_origin: Option<String>,
+    /// The probes, when plans are judged by self-retrieval.
+    pub probes: Option<Arc<ProbeSet>>,
+    /// Probe verdicts by plan ([`judge_key`]), so a plan seen before is judged at once.
+    judged: HashMap<String, ProbeEval>,
+    /// Judgements asked of the worker: job id and plan key.
+    judging: HashMap<u64, String>,
     /// Skipped files and documents left out.
     pub problems: Vec<Notice>,
     /// Content tokens per document.
@@ -206,11 +222,17 @@ impl App {
             info,
             model_label,
             plan,
-            refs,
+            mut refs,
             refs_origin,
+            probes: probe_set,
+            probe_prefix,
             problems,
             size,
         } = init;
+        let corpus = Arc::new(corpus);
+        if let Some(set) = &probe_set {
+            refs.extend(probes::references(&corpus, set, &probe_prefix));
+        }
         let doc_tokens: Vec<usize> = corpus.analyses.iter().map(|a| a.tokens.len()).collect();
         let sentence_tokens = corpus
             .analyses
@@ -241,6 +263,9 @@ impl App {
             model_label,
             refs,
             refs_origin,
+            probes: probe_set.map(Arc::new),
+            judged: HashMap::new(),
+            judging: HashMap::new(),
             problems,
             doc_tokens,
             sentence_tokens,
@@ -299,7 +324,22 @@ impl App {
 
     /// True while the worker has jobs of ours.
     pub fn busy(&self) -> bool {
-        !self.pending.is_empty()
+        !self.pending.is_empty() || !self.judging.is_empty()
+    }
+
+    /// References the user gave (the rest of `refs` are probes).
+    pub fn given_refs(&self) -> usize {
+        self.refs.len() - self.probe_count()
+    }
+
+    /// Probes in `refs`.
+    pub fn probe_count(&self) -> usize {
+        self.probes.as_ref().map_or(0, |p| p.probes.len())
+    }
+
+    /// Plans being judged by probes on the worker.
+    pub fn judging(&self) -> usize {
+        self.judging.len()
     }
 
     /// (done, total) inputs across pending jobs.
@@ -399,6 +439,9 @@ impl App {
                     matches!(action, Action::PrecisionNext),
                 );
                 self.apply(p);
+            }
+            Action::ContextDown | Action::ContextUp => {
+                self.change_context(matches!(action, Action::ContextUp))
             }
             Action::ChunksNext | Action::ChunksPrev => {
                 let mut p = self.current.plan.profile.clone();
@@ -586,9 +629,51 @@ impl App {
             p.cut.min_chunk = largest_below(&MIN_CHUNK_STEPS, budget / 2);
             notes.push(format!("min chunk lowered to {}", p.cut.min_chunk));
         }
+        if p.pool.context > 0 && p.pool.context < next {
+            p.pool.context = next;
+            notes.push(format!("late-chunking context raised to {next}"));
+        }
         if self.apply(p) && !notes.is_empty() {
             self.say(notes.join(", "), false);
         }
+    }
+
+    fn change_context(&mut self, up: bool) {
+        let mut p = self.current.plan.profile.clone();
+        let limit = self.info.max_position_embeddings;
+        let window = p.cut.window;
+        let steps: Vec<usize> = CONTEXT_STEPS
+            .iter()
+            .copied()
+            .filter(|&c| c == 0 || (c >= window && c <= limit))
+            .collect();
+        let next = step(&steps, p.pool.context, up);
+        if next == p.pool.context {
+            self.say(
+                match (up, next) {
+                    (false, 0) => "context 0: each chunk is encoded alone".into(),
+                    (false, _) => format!("context {next} is the smallest at window {window}"),
+                    (true, 0) => format!(
+                        "no late-chunking context fits: it must be at least the window ({window}) and at most the model's {limit} positions"
+                    ),
+                    (true, _) => format!("context {next} is the model's limit"),
+                },
+                false,
+            );
+            return;
+        }
+        if next > 0 && p.pool.tokens == TokenPooling::Cls {
+            self.say(
+                "late chunking pools each chunk's own token rows, and a chunk has no [CLS] row: press t for mean or max token pooling first".into(),
+                true,
+            );
+            return;
+        }
+        p.pool.context = next;
+        if next > 0 && p.pool.context_overlap >= next / 2 {
+            p.pool.context_overlap = kerf::profile::DEFAULT_CONTEXT_OVERLAP.min(next / 4);
+        }
+        self.apply(p);
     }
 
     fn change_overlap(&mut self, up: bool) {
@@ -669,7 +754,8 @@ impl App {
         }
     }
 
-    /// Queue embedding jobs for every vector the current and comparison plans lack.
+    /// Queue embedding jobs for every vector the current and comparison plans lack, and probe
+    /// judgements for plans whose vectors are all in.
     fn request_missing(&mut self) {
         let mut jobs: Vec<(Job, Vec<VecId>)> = Vec::new();
         let states: Vec<&PlanState> = [
@@ -690,28 +776,57 @@ impl App {
             if !encodings.contains(&encoding) {
                 encodings.push(encoding);
             }
-            let mut texts = Vec::new();
-            let mut tokens = Vec::new();
             let mut ids = Vec::new();
-            for (d, keys) in st.keys.iter().enumerate() {
-                for (c, k) in keys.iter().enumerate() {
-                    let id = (encoding, *k);
-                    if missing(&id, &mut asked) {
-                        let chunk = &st.chunks[d][c];
-                        texts.push(self.corpus.docs[d].text[chunk.byte_range.clone()].to_string());
-                        tokens.push(st.plan.input_tokens(chunk.content_tokens));
-                        ids.push(id);
+            let input = match st.plan.profile.pool.late() {
+                None => {
+                    let mut texts = Vec::new();
+                    let mut tokens = Vec::new();
+                    for (d, keys) in st.keys.iter().enumerate() {
+                        for (c, k) in keys.iter().enumerate() {
+                            let id = (encoding, *k);
+                            if missing(&id, &mut asked) {
+                                let chunk = &st.chunks[d][c];
+                                texts.push(
+                                    self.corpus.docs[d].text[chunk.byte_range.clone()].to_string(),
+                                );
+                                tokens.push(st.plan.input_tokens(chunk.content_tokens));
+                                ids.push(id);
+                            }
+                        }
+                    }
+                    Input::Texts { texts, tokens }
+                }
+                Some(options) => {
+                    // A late vector comes from passes over the whole document: a document
+                    // missing any of its chunks is embedded whole (the cache serves the rest).
+                    let mut docs = Vec::new();
+                    for (d, keys) in st.keys.iter().enumerate() {
+                        let doc_ids: Vec<VecId> = keys.iter().map(|k| (encoding, *k)).collect();
+                        if doc_ids.iter().any(|id| missing(id, &mut asked)) {
+                            for id in &doc_ids {
+                                asked.insert(*id);
+                            }
+                            ids.extend(doc_ids);
+                            docs.push((
+                                d,
+                                st.chunks[d].iter().map(|c| c.byte_range.clone()).collect(),
+                            ));
+                        }
+                    }
+                    Input::Late {
+                        corpus: self.corpus.clone(),
+                        docs,
+                        options,
                     }
                 }
-            }
-            if !texts.is_empty() {
+            };
+            if !ids.is_empty() {
                 let job = Job {
                     id: 0,
                     generation: Some(self.generation),
                     encoding,
                     prefix: st.plan.profile.cut.prefix.clone(),
-                    texts,
-                    tokens,
+                    input,
                 };
                 jobs.push((job, ids));
             }
@@ -747,8 +862,7 @@ impl App {
                     generation: None,
                     encoding,
                     prefix,
-                    texts,
-                    tokens,
+                    input: Input::Texts { texts, tokens },
                 };
                 jobs.insert(0, (job, ids));
             }
@@ -759,6 +873,60 @@ impl App {
             self.pending_keys.extend(ids.iter().copied());
             self.pending.insert(job.id, ids);
             self.outbox.push(Request::Embed(job));
+        }
+        self.request_judgements();
+    }
+
+    /// Ask the worker to judge by probes every shown plan whose vectors are all in and whose
+    /// verdict is neither known nor asked for.
+    fn request_judgements(&mut self) {
+        let Some(set) = self.probes.clone() else {
+            return;
+        };
+        let given = self.given_refs();
+        let mut asks = Vec::new();
+        for st in [
+            Some(&self.current),
+            Some(&self.baseline),
+            self.pinned.as_ref(),
+        ]
+        .into_iter()
+        .flatten()
+        {
+            let key = judge_key(&st.plan);
+            if st.probed.is_some()
+                || self.judged.contains_key(&key)
+                || self.judging.values().any(|k| *k == key)
+                || asks.iter().any(|(k, _): &(String, Judge)| *k == key)
+            {
+                continue;
+            }
+            let (Some(vectors), Some(probe_vectors)) = (
+                chunk_vectors(st, &self.vectors),
+                ref_vectors(st, given..self.refs.len(), &self.vectors),
+            ) else {
+                continue;
+            };
+            let judge = Judge {
+                id: 0,
+                generation: Some(self.generation),
+                plan: st.plan.clone(),
+                corpus: self.corpus.clone(),
+                chunks: Arc::new(st.chunks.clone()),
+                vectors: vectors
+                    .iter()
+                    .map(|vs| vs.iter().map(|v| v.to_vec()).collect())
+                    .collect(),
+                set: set.clone(),
+                probe_vectors: probe_vectors.iter().map(|v| v.to_vec()).collect(),
+            };
+            asks.push((key, judge));
+        }
+        for (key, mut judge) in asks {
+            judge.id = self.next_job;
+            self.next_job += 1;
+            self.judging.insert(judge.id, key);
+            self.outbox.push(Request::Judge(Box::new(judge)));
         }
     }
 
@@ -772,11 +940,10 @@ impl App {
             Report::Done {
                 id,
                 encoding,
-                keys: _,
                 vectors,
                 embedded,
             } => {
-                // The vectors come back in the order the job listed its texts.
+                // The vectors come back in the order the job listed its inputs.
                 let ids = self.pending.get(&id).cloned().unwrap_or_default();
                 self.forget_job(id);
                 self.embedded_total += embedded;
@@ -784,17 +951,30 @@ impl App {
                     debug_assert_eq!(p, encoding);
                     self.vectors.insert((p, k), v);
                 }
+                self.request_judgements();
                 self.rescore();
                 if self.stock.sort == SortOrder::Similarity {
                     self.resort_keep_selection();
                 }
             }
+            Report::Judged { id, eval } => {
+                if let Some(key) = self.judging.remove(&id) {
+                    self.embedded_total += eval.embedded;
+                    self.judged.insert(key, *eval);
+                    self.rescore();
+                    if self.stock.sort == SortOrder::Similarity {
+                        self.resort_keep_selection();
+                    }
+                }
+            }
             Report::Skipped { id } => {
                 self.forget_job(id);
+                self.judging.remove(&id);
                 self.request_missing();
             }
             Report::Failed { id, message } => {
                 self.forget_job(id);
+                self.judging.remove(&id);
                 self.say(format!("embedding failed: {message}"), true);
             }
         }
@@ -810,19 +990,20 @@ impl App {
     }
 
     fn rescore(&mut self) {
-        let scored = |st: &PlanState| {
-            if st.scored.is_some() {
-                return st.scored.clone();
+        let probes = self.probe_count();
+        let judged = &self.judged;
+        let score = |st: &mut PlanState, corpus: &Corpus, refs: &[Reference], vectors| {
+            if st.probed.is_none() && probes > 0 {
+                st.probed = judged.get(&judge_key(&st.plan)).cloned();
             }
-            score_state(st, &self.corpus, &self.refs, &self.vectors)
+            if st.scored.is_none() {
+                st.scored = score_state(st, corpus, refs, probes, vectors);
+            }
         };
-        self.current.scored = scored(&self.current);
-        self.baseline.scored = scored(&self.baseline);
-        if let Some(p) = &self.pinned {
-            let s = scored(p);
-            if let Some(p) = &mut self.pinned {
-                p.scored = s;
-            }
+        score(&mut self.current, &self.corpus, &self.refs, &self.vectors);
+        score(&mut self.baseline, &self.corpus, &self.refs, &self.vectors);
+        if let Some(p) = &mut self.pinned {
+            score(p, &self.corpus, &self.refs, &self.vectors);
         }
     }
 
@@ -1040,9 +1221,10 @@ fn cycle<T: Copy + PartialEq>(all: &[T], current: T, forward: bool) -> T {
 
 #[cfg(test)]
 mod tests {
+    use super::super::worker::{answer, EmbedderFactory};
     use super::*;
-    use kerf::cache::text_key;
     use kerf::corpus::Document;
+    use kerf::embed::{Embedder, HashEmbedder};
 
     fn demo_app(files: &[&str]) -> App {
         let dir = kerf::model::default_model_dir();
@@ -1072,6 +1254,8 @@ mod tests {
             plan,
             refs,
             refs_origin: Some("references.toml".into()),
+            probes: None,
+            probe_prefix: String::new(),
             problems: vec![],
             size: (120, 40),
         })
@@ -1080,28 +1264,17 @@ mod tests {
 
     /// Answer every queued job with the hash embedder, as the worker would.
     fn serve(app: &mut App) {
-        use kerf::embed::{Embedder, HashEmbedder};
-        let e = HashEmbedder { dim: 32 };
+        let mut factory: EmbedderFactory = Box::new(|_| {
+            Ok::<_, anyhow::Error>(Arc::new(HashEmbedder { dim: 32 }) as Arc<dyn Embedder>)
+        });
         loop {
             let reqs = app.take_requests();
             if reqs.is_empty() {
                 break;
             }
             for r in reqs {
-                if let Request::Embed(job) = r {
-                    let inputs: Vec<String> = job
-                        .texts
-                        .iter()
-                        .map(|t| format!("{}{t}", job.prefix))
-                        .collect();
-                    let refs: Vec<&str> = inputs.iter().map(String::as_str).collect();
-                    app.update(Action::Worker(Report::Done {
-                        id: job.id,
-                        encoding: job.encoding,
-                        keys: job.texts.iter().map(|t| text_key(&job.prefix, t)).collect(),
-                        vectors: e.embed(&refs).unwrap(),
-                        embedded: job.texts.len(),
-                    }));
+                if let Some(report) = answer(r, &mut factory) {
+                    app.update(Action::Worker(report));
                 }
             }
         }
@@ -1234,7 +1407,7 @@ mod tests {
         assert!(!jobs.is_empty());
         assert!(jobs.iter().all(|j| j.encoding.precision == Precision::Int8));
         let chunks: usize = app.current.chunks.iter().map(Vec::len).sum();
-        let asked: usize = jobs.iter().map(|j| j.texts.len()).sum();
+        let asked: usize = jobs.iter().map(|j| j.input.len()).sum();
         assert_eq!(
             asked,
             chunks + app.refs.len(),

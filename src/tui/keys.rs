@@ -72,6 +72,8 @@ fn key(k: &KeyEvent, app: &App) -> Option<Action> {
         KeyCode::Char('B') => Action::BoundaryPrev,
         KeyCode::Char('t') => Action::TokensNext,
         KeyCode::Char('T') => Action::TokensPrev,
+        KeyCode::Char('c') => Action::ContextDown,
+        KeyCode::Char('C') => Action::ContextUp,
         KeyCode::Char('a') => Action::ChunksNext,
         KeyCode::Char('A') => Action::ChunksPrev,
         KeyCode::Char('e') => Action::PrecisionNext,

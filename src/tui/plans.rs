@@ -1,10 +1,13 @@
 //! Plans as the explorer holds them: a plan cut over the corpus, the in-memory identity of each
 //! vector it needs, and its scores once every vector is in (scored by the library's one
-//! scoring path, [`kerf::compare::engine::score_views`], as compare and sweep are).
+//! scoring paths, [`kerf::compare::engine::score_views`] for references and
+//! [`kerf::compare::probes::score`] for self-retrieval probes, as compare and sweep are).
 use std::collections::HashMap;
+use std::hash::{Hash, Hasher};
 
 use kerf::compare::engine::{self, Corpus, DocScore};
 use kerf::compare::metrics::Summary;
+use kerf::compare::probes::{Depth, ProbeEval};
 use kerf::compare::refs::Reference;
 use kerf::plan::ResolvedPlan;
 use kerf::profile::Encoding;
@@ -25,8 +28,22 @@ pub struct Scored {
     pub ranking: Vec<Vec<DocScore>>,
     /// Per reference and document, the cosine of each chunk.
     pub chunk_cos: Vec<Vec<Vec<f32>>>,
-    /// Ranking metrics over references with expectations.
+    /// Ranking metrics over references with expectations (over the probes when there are
+    /// no references).
     pub summary: Summary,
+    /// Self-retrieval figures, when the plan is judged by probes.
+    pub probes: Option<ProbeFigures>,
+}
+
+/// What self-retrieval probes say of a plan.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ProbeFigures {
+    /// Metrics over all probes.
+    pub summary: Summary,
+    /// Metrics per depth band.
+    pub bands: Vec<(Depth, Summary)>,
+    /// Share of probes whose best chunk held the sentence.
+    pub chunk_hits: f64,
 }
 
 impl Scored {
@@ -39,9 +56,10 @@ impl Scored {
     }
 }
 
-/// In-memory identity of a vector: a chunk by its document and byte range under a prefix, or a
-/// reference by its index. Hashing every chunk's text on every key press would cost more than
-/// re-cutting; the SQLite cache behind the worker still keys by the text itself.
+/// In-memory identity of a vector: a chunk by its document and byte range under a prefix (and,
+/// under late chunking, the passes it was pooled from), or a reference by its index. Hashing
+/// every chunk's text on every key press would cost more than re-cutting; the SQLite cache
+/// behind the worker still keys by the text itself.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum Ident {
     /// A chunk of a document.
@@ -54,6 +72,9 @@ pub enum Ident {
         start: u32,
         /// Byte past the end.
         end: u32,
+        /// 0 for a chunk encoded alone; under late chunking a hash of the context, its
+        /// overlap and every chunk range of the document (the passes depend on all of them).
+        late: u64,
     },
     /// A reference by its index.
     Ref(u32),
@@ -73,6 +94,14 @@ pub struct PlanState {
     pub keys: Vec<Vec<Ident>>,
     /// Scores, once every vector is in.
     pub scored: Option<Scored>,
+    /// The probes' verdict, once the worker has judged the plan.
+    pub probed: Option<ProbeEval>,
+}
+
+/// What identifies a plan's probe verdict: everything that shapes its chunks and vectors.
+pub fn judge_key(plan: &ResolvedPlan) -> String {
+    let p = &plan.profile;
+    format!("{:?}{:?}{:?}", p.cut, p.pool, p.model)
 }
 
 /// Cut the corpus under a plan and key every chunk for the cache.
@@ -80,21 +109,30 @@ pub fn cut_state(corpus: &Corpus, counter: &TokenCounter, plan: ResolvedPlan) ->
     use rayon::prelude::*;
     let chunks = engine::cut_corpus(corpus, &plan, counter);
     let prefix = {
-        use std::hash::{Hash, Hasher};
         let mut h = std::collections::hash_map::DefaultHasher::new();
         plan.profile.cut.prefix.hash(&mut h);
         h.finish()
     };
+    let late = plan.profile.pool.late();
     let keys = chunks
         .par_iter()
         .enumerate()
         .map(|(doc, cs)| {
+            let late = late.map_or(0, |o| {
+                let mut h = std::collections::hash_map::DefaultHasher::new();
+                (o.context, o.overlap).hash(&mut h);
+                for c in cs {
+                    c.byte_range.hash(&mut h);
+                }
+                h.finish() | 1
+            });
             cs.iter()
                 .map(|c| Ident::Chunk {
                     prefix,
                     doc: doc as u32,
                     start: c.byte_range.start as u32,
                     end: c.byte_range.end as u32,
+                    late,
                 })
                 .collect::<Vec<Ident>>()
         })
@@ -104,51 +142,122 @@ pub fn cut_state(corpus: &Corpus, counter: &TokenCounter, plan: ResolvedPlan) ->
         chunks,
         keys,
         scored: None,
+        probed: None,
     }
 }
 
-/// Score a plan when every vector it needs is in memory.
-pub fn score_state(
+/// The plan's chunk vectors (`[doc][chunk]`) when every one is in memory.
+pub fn chunk_vectors<'v>(
     st: &PlanState,
-    corpus: &Corpus,
-    refs: &[Reference],
-    vectors: &HashMap<VecId, Vec<f32>>,
-) -> Option<Scored> {
-    if refs.is_empty() {
-        return None;
-    }
+    vectors: &'v HashMap<VecId, Vec<f32>>,
+) -> Option<Vec<Vec<&'v [f32]>>> {
     let encoding = Encoding::of(&st.plan.profile);
-    let ref_vecs: Vec<&[f32]> = (0..refs.len())
-        .map(|i| {
-            vectors
-                .get(&(encoding, Ident::Ref(i as u32)))
-                .map(Vec::as_slice)
-        })
-        .collect::<Option<_>>()?;
-    let chunk_vecs: Vec<Vec<&[f32]>> = st
-        .keys
+    st.keys
         .iter()
         .map(|ks| {
             ks.iter()
                 .map(|k| vectors.get(&(encoding, *k)).map(Vec::as_slice))
                 .collect::<Option<Vec<_>>>()
         })
-        .collect::<Option<_>>()?;
-    let (ranking, chunk_cos): (Vec<Vec<DocScore>>, Vec<Vec<Vec<f32>>>) = engine::score_views(
-        corpus,
-        &ref_vecs,
-        &chunk_vecs,
-        &st.chunks,
-        st.plan.profile.pool.chunks,
-        st.plan.profile.pool.temperature,
-    )
-    .into_iter()
-    .map(|s| (s.ranking, s.chunk_cos))
-    .unzip();
-    let summary = engine::summarize(corpus, refs, &ranking);
+        .collect()
+}
+
+/// Vectors of references `range` under the plan's encoding, when all are in memory.
+pub fn ref_vectors<'v>(
+    st: &PlanState,
+    range: std::ops::Range<usize>,
+    vectors: &'v HashMap<VecId, Vec<f32>>,
+) -> Option<Vec<&'v [f32]>> {
+    let encoding = Encoding::of(&st.plan.profile);
+    range
+        .map(|i| {
+            vectors
+                .get(&(encoding, Ident::Ref(i as u32)))
+                .map(Vec::as_slice)
+        })
+        .collect()
+}
+
+/// Score a plan when every vector it needs is in memory and, with probes, the worker's verdict
+/// is in. `refs` are the references the user gave followed by the probes' (`probes` of them).
+pub fn score_state(
+    st: &PlanState,
+    corpus: &Corpus,
+    refs: &[Reference],
+    probes: usize,
+    vectors: &HashMap<VecId, Vec<f32>>,
+) -> Option<Scored> {
+    if refs.is_empty() {
+        return None;
+    }
+    let given = refs.len() - probes;
+    let chunk_vecs = chunk_vectors(st, vectors)?;
+    let mut ranking = Vec::with_capacity(refs.len());
+    let mut chunk_cos = Vec::with_capacity(refs.len());
+    let mut summary = None;
+    if given > 0 {
+        let ref_vecs = ref_vectors(st, 0..given, vectors)?;
+        for s in engine::score_views(
+            corpus,
+            &ref_vecs,
+            &chunk_vecs,
+            &st.chunks,
+            st.plan.profile.pool.chunks,
+            st.plan.profile.pool.temperature,
+        ) {
+            ranking.push(s.ranking);
+            chunk_cos.push(s.chunk_cos);
+        }
+        summary = Some(engine::summarize(corpus, &refs[..given], &ranking));
+    }
+    let mut figures = None;
+    if probes > 0 {
+        let eval = st.probed.as_ref()?;
+        let probe_vecs = ref_vectors(st, given..refs.len(), vectors)?;
+        for ((scores, own), (q, r)) in eval
+            .scores
+            .iter()
+            .zip(&eval.own_chunk_cos)
+            .zip(probe_vecs.iter().zip(&refs[given..]))
+        {
+            ranking.push(scores.clone());
+            // The probe's own document shows its chunks with the sentence taken out.
+            let own_doc = r
+                .expect
+                .keys()
+                .next()
+                .and_then(|id| corpus.docs.iter().position(|d| &d.id == id));
+            chunk_cos.push(
+                chunk_vecs
+                    .iter()
+                    .enumerate()
+                    .map(|(d, vs)| {
+                        if Some(d) == own_doc {
+                            own.clone()
+                        } else {
+                            vs.iter().map(|v| kerf::pool::cosine(q, v)).collect()
+                        }
+                    })
+                    .collect(),
+            );
+        }
+        figures = Some(ProbeFigures {
+            summary: eval.summary.clone(),
+            bands: eval.bands.clone(),
+            chunk_hits: eval.chunk_hits,
+        });
+    }
     Some(Scored {
         ranking,
         chunk_cos,
-        summary,
+        summary: summary.unwrap_or_else(|| eval_summary(&figures)),
+        probes: figures,
     })
+}
+
+fn eval_summary(figures: &Option<ProbeFigures>) -> Summary {
+    figures
+        .as_ref()
+        .map(|f| f.summary.clone())
+        .unwrap_or_default()
 }

@@ -16,6 +16,7 @@ use super::board::Seg;
 pub use super::geometry::{
     areas, board_rows, board_text_width, too_small, Areas, GUTTER, MIN_SIZE,
 };
+use kerf::compare::engine;
 use kerf::compare::sweep::plan_name;
 
 /// Draw the whole explorer into a frame.
@@ -116,7 +117,7 @@ pub fn plan_line(p: &kerf::profile::Profile, model: &str, width: usize) -> (Line
         ]
     };
     let tokens = format!("{:?}", p.pool.tokens).to_lowercase();
-    let full: Vec<(&str, String)> = vec![
+    let mut full: Vec<(&str, String)> = vec![
         ("window ", p.cut.window.to_string()),
         ("boundary ", p.cut.boundary.name().to_string()),
         ("overlap ", p.cut.overlap.to_string()),
@@ -125,7 +126,7 @@ pub fn plan_line(p: &kerf::profile::Profile, model: &str, width: usize) -> (Line
         ("chunks ", p.pool.chunks.name().to_string()),
         ("precision ", p.pool.precision.name().to_string()),
     ];
-    let short: Vec<(&str, String)> = vec![
+    let mut short: Vec<(&str, String)> = vec![
         ("window ", p.cut.window.to_string()),
         ("", p.cut.boundary.name().to_string()),
         ("overlap ", p.cut.overlap.to_string()),
@@ -134,6 +135,10 @@ pub fn plan_line(p: &kerf::profile::Profile, model: &str, width: usize) -> (Line
         ("chunks ", p.pool.chunks.name().to_string()),
         ("", p.pool.precision.name().to_string()),
     ];
+    if p.pool.context > 0 {
+        full.push(("context ", p.pool.context.to_string()));
+        short.push(("late ", p.pool.context.to_string()));
+    }
     let items_width = |items: &[(&str, String)]| {
         items
             .iter()
@@ -589,8 +594,9 @@ fn seg_style(s: &Seg, best: Option<usize>) -> Style {
 fn fit(app: &App, area: Rect, buf: &mut Buffer) {
     if app.refs.is_empty() {
         Paragraph::new(vec![
-            Line::styled(" No reference texts, so there is nothing to measure similarity against.", Style::new().add_modifier(Modifier::BOLD)),
+            Line::styled(" No reference texts and no probes, so there is nothing to measure similarity against.", Style::new().add_modifier(Modifier::BOLD)),
             Line::raw(""),
+            Line::raw(" Without --refs (and without --probes 0) kerf judges plans by self-retrieval probes."),
             Line::raw(" Start kerf explore with --refs FILE, a TOML file of questions or passages you care about:"),
             Line::raw(""),
             Line::styled("   schema = 1", KEY),
@@ -607,6 +613,8 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         return;
     }
     let r = &app.refs[app.fit.reference];
+    let given = app.given_refs();
+    let is_probe = app.fit.reference >= given;
     let cmp = app.comparison();
     let cmp_kind = if app.pinned.is_some() {
         "pinned"
@@ -615,11 +623,15 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
     };
     let line0 = Line::from(vec![
         Span::styled(
-            format!(
-                " Reference {}/{} (r/R) ",
-                app.fit.reference + 1,
-                app.refs.len()
-            ),
+            if is_probe {
+                format!(
+                    " Probe {}/{} (r/R) ",
+                    app.fit.reference - given + 1,
+                    app.probe_count()
+                )
+            } else {
+                format!(" Reference {}/{} (r/R) ", app.fit.reference + 1, given)
+            },
             Style::new().fg(Color::Black).bg(Color::Yellow),
         ),
         Span::styled(
@@ -634,7 +646,14 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         buf.set_string(
             area.x + 1,
             area.y + 2,
-            format!("embedding… scores appear when the vectors are in ({done}/{total})"),
+            if total == 0 && app.judging() > 0 {
+                format!(
+                    "judging by {} probes: re-embedding the chunks that held each sentence without it…",
+                    app.probe_count()
+                )
+            } else {
+                format!("embedding… scores appear when the vectors are in ({done}/{total})")
+            },
             DIM,
         );
         return;
@@ -661,10 +680,18 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
     let b = &then.summary;
     let mut metrics = vec![Span::styled(
         format!(
-            " {} vs {} {}:",
+            " {} vs {} {}{}:",
             plan_name(&app.current.plan.profile),
             cmp_kind,
-            cmp.plan.profile.name
+            cmp.plan.profile.name,
+            if given == 0 {
+                format!(
+                    ", self-retrieval by {} probes (no --refs given)",
+                    app.probe_count()
+                )
+            } else {
+                String::new()
+            }
         ),
         DIM,
     )];
@@ -675,6 +702,20 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
     ] {
         metrics.push(Span::raw(format!("  {k} {x:.3} ")));
         metrics.push(delta(x - y, true));
+    }
+    if let (Some(p), Some(q)) = (&now.probes, &then.probes) {
+        if given > 0 {
+            metrics.push(Span::styled("  │ probes", DIM));
+            metrics.push(Span::raw(format!(" MRR@10 {:.3} ", p.summary.mrr_at_10)));
+            metrics.push(delta(p.summary.mrr_at_10 - q.summary.mrr_at_10, true));
+        }
+        // By where the sentence starts: what a truncating plan never sees shows here.
+        for (band, m) in &p.bands {
+            metrics.push(Span::styled(format!("  {} ", band.label()), DIM));
+            metrics.push(Span::raw(format!("{:.3}", m.mrr_at_10)));
+        }
+        metrics.push(Span::styled("  best chunk held it ", DIM));
+        metrics.push(Span::raw(format!("{:.0}%", 100.0 * p.chunk_hits)));
     }
     buf.set_line(area.x, area.y + 1, &Line::from(metrics), area.width);
     let id_w = (area.width as usize / 3).clamp(12, 44);
@@ -790,10 +831,7 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
                 DIM
             },
         );
-        let best = c
-            .iter()
-            .enumerate()
-            .fold(0, |b, (i, &s)| if s > c[b] { i } else { b });
+        let best = engine::best_chunk(c);
         let width = strip_w.min(n * 3);
         let mut marked = false;
         for cell in 0..width {
@@ -887,7 +925,7 @@ fn status(app: &App, area: Rect, buf: &mut Buffer) {
 }
 
 /// Every key, for the help overlay and the README.
-pub const KEYS: [(&str, &str); 26] = [
+pub const KEYS: [(&str, &str); 27] = [
     ("Tab / Shift-Tab, 1 2 3", "switch pane: Stock, Board, Fit"),
     ("f, Enter", "open the selected document in the Board"),
     (
@@ -906,13 +944,17 @@ pub const KEYS: [(&str, &str); 26] = [
         "next / previous boundary rule (head token sentence paragraph)",
     ),
     ("t / T", "next / previous token pooling (mean cls max)"),
+    (
+        "c / C",
+        "late-chunking context smaller / larger (0 = chunks alone; 256 384 512)",
+    ),
     ("a / A", "next / previous chunk aggregation"),
     ("e / E", "next / previous encoder precision (f32 bf16 int8)"),
     ("p", "pin the current plan as the comparison"),
     ("P", "compare against the truncation baseline again"),
     ("] / [", "next / previous chunk in the Board"),
     ("x", "jump to the chunk best matching the reference"),
-    ("r / R", "next / previous reference"),
+    ("r / R", "next / previous reference or probe"),
     ("s", "sort the list: input, length, overflow, similarity"),
     (">", "save the plan as a profile (asks for a file name)"),
     ("<", "load a profile"),

@@ -157,11 +157,16 @@ pub fn score_views(
         .collect()
 }
 
-/// Index of the highest cosine (the first on ties); 0 for an empty list.
+/// Index of the highest cosine (the first on ties; NaN, a chunk with nothing left, never wins
+/// over a number); 0 for an empty list.
 pub fn best_chunk(cos: &[f32]) -> usize {
-    cos.iter()
-        .enumerate()
-        .fold(0, |b, (i, &s)| if s > cos[b] { i } else { b })
+    cos.iter().enumerate().fold(0, |b, (i, &s)| {
+        if s > cos[b] || (cos[b].is_nan() && !s.is_nan()) {
+            i
+        } else {
+            b
+        }
+    })
 }
 
 /// One reference's ranking of the documents, best first (ties by document id descending, as

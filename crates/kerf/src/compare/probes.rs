@@ -445,6 +445,11 @@ pub struct ProbeEval {
     pub embedded: usize,
     /// Encoder-input tokens of the holed chunks: the extra cost of judging by probes.
     pub holed_tokens: usize,
+    /// Per probe, the cosine of each chunk of its own document with the sentence taken out
+    /// (aligned with the document's chunks; NaN for a chunk nothing was left of), for showing
+    /// where in the document a probe lands.
+    #[serde(skip)]
+    pub own_chunk_cos: Vec<Vec<f32>>,
 }
 
 /// Score a plan's already-embedded chunks (`vectors[doc][chunk]`) against probes whose vectors
@@ -477,32 +482,40 @@ pub fn score(
         })
         .collect();
     let mut scores = Vec::with_capacity(set.probes.len());
+    let mut own_chunk_cos = Vec::with_capacity(set.probes.len());
     let mut hits = 0usize;
     for ((p, q), rs) in set.probes.iter().zip(probe_vectors).zip(&replacements) {
         // The probe's own document: replaced chunks swapped in, emptied ones dropped.
         let mut own: Vec<&[f32]> = Vec::new();
         let mut own_new: Vec<usize> = Vec::new();
         let mut held = Vec::new(); // positions in `own` of chunks that held the sentence
+        let mut aligned = Vec::with_capacity(chunks[p.doc].len());
         let fresh = new_tokens(&chunks[p.doc]);
         let mut r = rs.iter().peekable();
         for (i, v) in vectors[p.doc].iter().enumerate() {
             match r.peek() {
                 Some(x) if x.chunk == i => {
-                    if let Some(v) = &x.vector {
-                        if x.held {
-                            held.push(own.len());
+                    match &x.vector {
+                        Some(v) => {
+                            if x.held {
+                                held.push(own.len());
+                            }
+                            own.push(v);
+                            own_new.push(fresh[i]);
+                            aligned.push(pool::cosine(q, v));
                         }
-                        own.push(v);
-                        own_new.push(fresh[i]);
+                        None => aligned.push(f32::NAN),
                     }
                     r.next();
                 }
                 _ => {
                     own.push(v);
                     own_new.push(fresh[i]);
+                    aligned.push(pool::cosine(q, v));
                 }
             }
         }
+        own_chunk_cos.push(aligned);
         let own_vec = pool::doc_vector(how, &own, &own_new, temperature);
         let chunk_cos: Vec<Vec<f32>> = vectors
             .iter()
@@ -570,6 +583,7 @@ pub fn score(
         bands,
         embedded,
         holed_tokens,
+        own_chunk_cos,
     })
 }
 
