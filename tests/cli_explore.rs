@@ -28,3 +28,20 @@ fn missing_model_names_the_fetch_command() {
     ]));
     assert!(e.contains("scripts/fetch-model"), "{e}");
 }
+
+#[test]
+fn probes_asked_for_on_a_corpus_without_prose_are_refused_before_the_screen() {
+    common::model_dir();
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("titles.md"), "# Timetable\n\n## Summer\n").unwrap();
+    let e = common::fails(&common::kerf(&[
+        "explore",
+        "--hash-embedder",
+        "--no-cache",
+        "--probes",
+        "5",
+        dir.path().to_str().unwrap(),
+    ]));
+    assert!(e.contains("no sentence of the corpus qualifies"), "{e}");
+    assert!(!e.contains("terminal"), "{e}");
+}

@@ -206,6 +206,54 @@ fn fit_pane_shows_shifts_and_strip() {
 }
 
 #[test]
+fn fit_pane_judges_by_probes_when_no_references_are_given() {
+    let mut app = app_judged(demo_docs(), false, 40, (160, 45), 0);
+    let n = app.probe_count();
+    assert!(n >= 10, "{n} probes");
+    serve(&mut app);
+    app.update(Action::ShowPane(Pane::Fit));
+    let s = screen(&app, 160, 45);
+    let all = s.join("\n");
+    assert!(has(&s, &format!("Probe 1/{n} (r/R)")), "{all}");
+    assert!(
+        has(
+            &s,
+            &format!("self-retrieval by {n} probes (no --refs given)")
+        ) && has(&s, ", by probes:"),
+        "{all}"
+    );
+    assert!(has(&s, "MRR@10") && has(&s, "first window"), "{all}");
+    assert!(has(&s, "best chunk held it"), "{all}");
+    assert!(has(&s, "◆"), "{all}");
+    // The probe's own document is the one expected.
+    assert!(has(&s, "✓ expected"), "{all}");
+    app.update(Action::PrevRef);
+    assert!(has(&screen(&app, 160, 45), &format!("Probe {n}/{n}")));
+}
+
+#[test]
+fn header_names_a_late_chunking_context() {
+    let mut app = app_judged(demo_docs(), true, 0, (160, 45), 512);
+    let s = screen(&app, 160, 45);
+    assert!(header_has(&s, "context 512"), "{}", s.join("\n"));
+    serve(&mut app);
+    app.update(Action::ShowPane(Pane::Fit));
+    let s = screen(&app, 160, 45);
+    assert!(has(&s, "MRR@10"), "late plan scored: {}", s.join("\n"));
+    // 512 → 384 → 256 → 0 (chunks alone).
+    app.update(Action::ContextDown);
+    assert!(header_has(&screen(&app, 160, 45), "context 384"));
+    app.update(Action::ContextDown);
+    app.update(Action::ContextDown);
+    let s = screen(&app, 160, 45);
+    assert!(!header_has(&s, "context"), "{}", s.join("\n"));
+}
+
+fn header_has(lines: &[String], want: &str) -> bool {
+    lines.first().is_some_and(|l| l.contains(want))
+}
+
+#[test]
 fn fit_pane_without_references_says_how_to_add_them() {
     let mut app = app_with(demo_docs(), false, (120, 40));
     app.update(Action::ShowPane(Pane::Fit));

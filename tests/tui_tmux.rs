@@ -205,6 +205,54 @@ fn explore_in_tmux_changes_plan_and_saves_a_profile() {
     );
 }
 
+/// Without --refs the explorer judges plans by self-retrieval probes and says so; c/C steps a
+/// late-chunking context, which the worker runs and the saved profile keeps.
+#[test]
+fn explore_in_tmux_judges_by_probes_and_runs_late_chunking() {
+    let tmux = Command::new("tmux").arg("-V").output();
+    assert!(
+        tmux.as_ref().is_ok_and(|o| o.status.success()),
+        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
+    );
+    common::model_dir();
+    let dir = tempfile::tempdir().unwrap();
+    let demo = common::repo().join("demo-texts");
+    let bin = PathBuf::from(env!("CARGO_BIN_EXE_kerf"));
+    let cmd = format!(
+        "{} explore --hash-embedder --no-cache --probes 30 --probe-seed 5 {}; echo KERF-EXITED-$?; sleep 600",
+        bin.display(),
+        demo.display()
+    );
+    let s = Session::start(
+        &format!("kerf-probe-test-{}", std::process::id()),
+        dir.path(),
+        &cmd,
+    );
+    s.wait_for("window 256");
+    s.send(&["3"]);
+    let judged = s.wait_for("self-retrieval by 30 probes (no --refs given)");
+    assert!(judged.contains("Probe 1/30"), "{judged}");
+    assert!(judged.contains("MRR@10 by depth:"), "{judged}");
+    // A late-chunking context of 256 tokens: re-embedded through passes, then judged again.
+    s.send(&["C"]);
+    let late = s.wait_for("context 256");
+    assert!(header(&late).contains("context 256"), "{late}");
+    s.wait_for("self-retrieval by 30 probes (no --refs given)");
+    s.send(&[">"]);
+    s.wait_for("save plan as:");
+    s.send(&["C-u"]);
+    s.type_text("late.toml");
+    s.send(&["Enter"]);
+    s.wait_for("saved late.toml");
+    s.send(&["q"]);
+    let end = s.wait_for("KERF-EXITED-");
+    assert!(end.contains("KERF-EXITED-0"), "{end}");
+    let saved = std::fs::read_to_string(dir.path().join("late.toml")).unwrap();
+    assert!(saved.contains("context = 256"), "{saved}");
+    let shown = common::ok(&kerf_in(dir.path(), &["profile", "show", "late.toml"]));
+    assert!(shown.contains("late chunking"), "{shown}");
+}
+
 #[test]
 fn a_panic_restores_the_terminal() {
     let tmux = Command::new("tmux").arg("-V").output();

@@ -154,7 +154,16 @@ pub fn run(a: ExploreArgs) -> Result<()> {
     // Without references, plans are judged by self-retrieval probes (said on stderr here and
     // in the Fit pane); `--probes 0` turns them off.
     let probe_set = match a.probes.wanted(a.refs.is_some()) {
-        Some(n) if n > 0 => Some(a.probes.draw(&corpus, n, loaded.info.default_window())?),
+        Some(n) if n > 0 => match a.probes.draw(&corpus, n, loaded.info.default_window()) {
+            Ok(set) => Some(set),
+            // Probes nobody asked for are not worth refusing the explorer over: the cut can
+            // still be explored, and the Fit pane says how to add references.
+            Err(e) if a.probes.probes.is_none() => {
+                eprintln!("kerf: {e:#}; exploring without similarity figures");
+                None
+            }
+            Err(e) => return Err(e),
+        },
         _ => None,
     };
     let cache_path = if a.encoder.no_cache {

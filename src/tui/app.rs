@@ -1263,10 +1263,14 @@ mod tests {
     }
 
     /// Answer every queued job with the hash embedder, as the worker would.
+    fn hash_factory() -> EmbedderFactory {
+        Box::new(
+            |_| Ok::<_, anyhow::Error>(Arc::new(HashEmbedder { dim: 32 }) as Arc<dyn Embedder>),
+        )
+    }
+
     fn serve(app: &mut App) {
-        let mut factory: EmbedderFactory = Box::new(|_| {
-            Ok::<_, anyhow::Error>(Arc::new(HashEmbedder { dim: 32 }) as Arc<dyn Embedder>)
-        });
+        let mut factory = hash_factory();
         loop {
             let reqs = app.take_requests();
             if reqs.is_empty() {
@@ -1284,6 +1288,144 @@ mod tests {
         "locomotive-manual-issue-6.md",
         "fares-and-timetables-2032.md",
     ];
+
+    /// The demo app without references, judged by `n` probes drawn with seed 1.
+    fn probe_app(files: &[&str], n: usize) -> App {
+        let mut app = demo_app(files);
+        let set = probes::draw(
+            &app.corpus,
+            &probes::ProbeOptions::new(n, 1, app.info.default_window()),
+        );
+        assert!(
+            set.probes.len() >= 5,
+            "too few probes: {}",
+            set.probes.len()
+        );
+        app.refs = probes::references(&app.corpus, &set, "");
+        app.probes = Some(Arc::new(set));
+        app.take_requests();
+        app.vectors.clear();
+        app.pending.clear();
+        app.pending_keys.clear();
+        app.request_missing();
+        app
+    }
+
+    /// What `kerf compare` computes for a plan with the same (hash) embedder: chunk vectors
+    /// through `engine::embed_chunks`, then the probes' verdict through `probes::score`.
+    fn library_verdict(app: &App, st: &PlanState) -> (Vec<Vec<Vec<f32>>>, ProbeEval) {
+        let e = HashEmbedder { dim: 32 };
+        let (vectors, _) =
+            engine::embed_chunks(&app.corpus, &st.chunks, &st.plan, &e, None, &mut |_, _| {})
+                .unwrap();
+        let set = app.probes.as_ref().unwrap();
+        let refs = probes::references(&app.corpus, set, "");
+        let qv = engine::embed_refs(&e, None, &refs).unwrap();
+        let eval = probes::score(
+            &app.corpus,
+            set,
+            &qv,
+            &st.plan,
+            &st.chunks,
+            &vectors,
+            &e,
+            None,
+        )
+        .unwrap();
+        (vectors, eval)
+    }
+
+    #[test]
+    fn probes_judge_plans_as_compare_does_alone_and_late() {
+        let mut app = probe_app(&DOCS, 24);
+        serve(&mut app);
+        assert!(!app.busy());
+        for st in [&app.current, &app.baseline] {
+            let got = st.scored.as_ref().expect("judged by probes");
+            let (_, want) = library_verdict(&app, st);
+            assert_eq!(got.summary, want.summary, "{}", st.plan.profile.name);
+            assert_eq!(got.probes.as_ref().unwrap().bands, want.bands);
+            assert_eq!(got.ranking, want.scores);
+        }
+        // The probe's own document shows its chunks with the sentence taken out: its cosines
+        // are the holed ones, the other documents' the ordinary ones.
+        let set = app.probes.clone().unwrap();
+        let got = app.current.scored.as_ref().unwrap();
+        let (_, want) = library_verdict(&app, &app.current);
+        for (i, p) in set.probes.iter().enumerate() {
+            let own = &got.chunk_cos[i][p.doc];
+            assert_eq!(own.len(), app.current.chunks[p.doc].len());
+            for (a, b) in own.iter().zip(&want.own_chunk_cos[i]) {
+                assert!(a == b || (a.is_nan() && b.is_nan()), "{a} vs {b}");
+            }
+        }
+
+        // A late-chunking context: whole documents go to the worker, and both the vectors and
+        // the verdict are the library's.
+        app.update(Action::ContextUp);
+        assert_eq!(app.current.plan.profile.pool.context, 256);
+        let reqs = app.take_requests();
+        assert!(
+            reqs.iter().any(|r| matches!(
+                r,
+                Request::Embed(Job {
+                    input: Input::Late { .. },
+                    ..
+                })
+            )),
+            "no late job"
+        );
+        for r in reqs {
+            if let Some(report) = answer(r, &mut hash_factory()) {
+                app.update(Action::Worker(report));
+            }
+        }
+        serve(&mut app);
+        let (want_vectors, want) = library_verdict(&app, &app.current);
+        let have = chunk_vectors(&app.current, &app.vectors).unwrap();
+        assert_eq!(have.len(), want_vectors.len());
+        for (h, w) in have.iter().zip(&want_vectors) {
+            let w: Vec<&[f32]> = w.iter().map(Vec::as_slice).collect();
+            assert_eq!(h, &w);
+        }
+        let got = app.current.scored.as_ref().expect("late plan judged");
+        assert_eq!(got.summary, want.summary);
+        // Stepping the context back down finds the earlier verdict at once.
+        app.update(Action::ContextDown);
+        assert_eq!(app.current.plan.profile.pool.context, 0);
+        assert!(app.current.scored.is_some());
+        assert!(app
+            .take_requests()
+            .iter()
+            .all(|r| matches!(r, Request::Generation(_))));
+    }
+
+    #[test]
+    fn context_steps_respect_the_window_and_token_pooling() {
+        let mut app = demo_app(&DOCS);
+        app.update(Action::ContextUp);
+        assert_eq!(app.current.plan.profile.pool.context, 256);
+        // A larger window lifts the context with it.
+        app.update(Action::WindowUp);
+        assert_eq!(app.current.plan.window, 320);
+        assert_eq!(app.current.plan.profile.pool.context, 320);
+        app.update(Action::ContextUp);
+        assert_eq!(app.current.plan.profile.pool.context, 384);
+        app.update(Action::ContextUp);
+        app.update(Action::ContextUp);
+        assert_eq!(app.current.plan.profile.pool.context, 512);
+        assert!(app.status.as_ref().unwrap().text.contains("limit"));
+        // CLS pooling has no row per chunk: refused with a message.
+        app.update(Action::ContextDown);
+        app.update(Action::ContextDown);
+        app.update(Action::ContextDown);
+        assert_eq!(app.current.plan.profile.pool.context, 0);
+        app.update(Action::TokensNext);
+        assert_eq!(app.current.plan.profile.pool.tokens, TokenPooling::Cls);
+        app.update(Action::ContextUp);
+        assert_eq!(app.current.plan.profile.pool.context, 0);
+        assert!(app.status.as_ref().unwrap().error);
+    }
 
     #[test]
     fn window_change_recuts() {
@@ -1407,7 +1549,7 @@ mod tests {
         assert!(!jobs.is_empty());
         assert!(jobs.iter().all(|j| j.encoding.precision == Precision::Int8));
         let chunks: usize = app.current.chunks.iter().map(Vec::len).sum();
-        let asked: usize = jobs.iter().map(|j| j.input.len()).sum();
+        let asked: usize = jobs.iter().map(|j| j.input.vectors()).sum();
         assert_eq!(
             asked,
             chunks + app.refs.len(),

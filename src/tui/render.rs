@@ -246,7 +246,12 @@ fn header(app: &App, area: Rect, buf: &mut Buffer) {
             Gauge::default()
                 .gauge_style(Style::new().fg(Color::Blue).bg(Color::Indexed(236)))
                 .ratio(ratio)
-                .label(if model_shown {
+                .label(if total == 0 {
+                    format!(
+                        "judging by {} self-retrieval probes: re-embedding chunks without their sentence (the UI stays live)",
+                        app.probe_count()
+                    )
+                } else if model_shown {
                     format!("embedding {done}/{total} chunks (the UI stays live)")
                 } else {
                     format!(
@@ -684,14 +689,7 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
             plan_name(&app.current.plan.profile),
             cmp_kind,
             cmp.plan.profile.name,
-            if given == 0 {
-                format!(
-                    ", self-retrieval by {} probes (no --refs given)",
-                    app.probe_count()
-                )
-            } else {
-                String::new()
-            }
+            if given == 0 { ", by probes" } else { "" }
         ),
         DIM,
     )];
@@ -703,25 +701,41 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         metrics.push(Span::raw(format!("  {k} {x:.3} ")));
         metrics.push(delta(x - y, true));
     }
-    if let (Some(p), Some(q)) = (&now.probes, &then.probes) {
-        if given > 0 {
-            metrics.push(Span::styled("  │ probes", DIM));
-            metrics.push(Span::raw(format!(" MRR@10 {:.3} ", p.summary.mrr_at_10)));
-            metrics.push(delta(p.summary.mrr_at_10 - q.summary.mrr_at_10, true));
-        }
-        // By where the sentence starts: what a truncating plan never sees shows here.
-        for (band, m) in &p.bands {
-            metrics.push(Span::styled(format!("  {} ", band.label()), DIM));
-            metrics.push(Span::raw(format!("{:.3}", m.mrr_at_10)));
-        }
-        metrics.push(Span::styled("  best chunk held it ", DIM));
-        metrics.push(Span::raw(format!("{:.0}%", 100.0 * p.chunk_hits)));
-    }
     buf.set_line(area.x, area.y + 1, &Line::from(metrics), area.width);
+    // With probes, a line of their own: MRR@10 by where the sentence starts (what a
+    // truncating plan never sees shows in the later bands).
+    let mut top = area.y + 2;
+    if let (Some(p), Some(q)) = (&now.probes, &then.probes) {
+        let mut line = vec![Span::styled(
+            format!(
+                " self-retrieval by {} probes{}: ",
+                app.probe_count(),
+                if given == 0 { " (no --refs given)" } else { "" }
+            ),
+            DIM,
+        )];
+        if given > 0 {
+            line.push(Span::raw(format!("MRR@10 {:.3} ", p.summary.mrr_at_10)));
+            line.push(delta(p.summary.mrr_at_10 - q.summary.mrr_at_10, true));
+            line.push(Span::raw("  "));
+        }
+        line.push(Span::styled("MRR@10 by depth:", DIM));
+        for (band, m) in &p.bands {
+            line.push(Span::styled(format!(" {} ", band.label()), DIM));
+            line.push(Span::raw(format!("{:.3} ", m.mrr_at_10)));
+            if let Some((_, w)) = q.bands.iter().find(|(b, _)| b == band) {
+                line.push(delta(m.mrr_at_10 - w.mrr_at_10, true));
+            }
+        }
+        line.push(Span::styled("  best chunk held it ", DIM));
+        line.push(Span::raw(format!("{:.0}%", 100.0 * p.chunk_hits)));
+        buf.set_line(area.x, top, &Line::from(line), area.width);
+        top += 1;
+    }
     let id_w = (area.width as usize / 3).clamp(12, 44);
     buf.set_string(
         area.x,
-        area.y + 2,
+        top,
         format!(
             " {:>4}  {:<id_w$} {:>6} {:>7} {:>5} {:>5}",
             "rank", "document", "cosine", "Δcos", "was", "Δrank"
@@ -729,13 +743,14 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         DIM,
     );
     let strip_rows = (app.refs.len() + 2).min((area.height as usize).saturating_sub(6) / 2);
-    let table_rows = (area.height as usize).saturating_sub(3 + strip_rows);
+    let table_rows =
+        (area.height as usize).saturating_sub((top - area.y) as usize + 1 + strip_rows);
     let ranking = &now.ranking[app.fit.reference];
     let sel = app.selected_doc();
     let sel_pos = ranking.iter().position(|x| x.doc == sel).unwrap_or(0);
     let first = sel_pos.saturating_sub(table_rows.saturating_sub(1));
     for (i, ds) in ranking.iter().enumerate().skip(first).take(table_rows) {
-        let y = area.y + 3 + (i - first) as u16;
+        let y = top + 1 + (i - first) as u16;
         let id = &app.corpus.docs[ds.doc].id;
         let expected = r.expect.get(id).is_some_and(|&g| g > 0);
         let was = then.rank_score(app.fit.reference, ds.doc);
@@ -780,7 +795,7 @@ fn fit(app: &App, area: Rect, buf: &mut Buffer) {
         buf.set_line(area.x, y, &Line::from(spans), area.width);
     }
     // The per-chunk strip: where in the selected document each reference lands.
-    let y0 = area.y + 3 + table_rows as u16;
+    let y0 = top + 1 + table_rows as u16;
     let cos = now
         .chunk_cos
         .iter()

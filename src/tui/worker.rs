@@ -49,7 +49,7 @@ pub enum Input {
 
 impl Input {
     /// Vectors the input gives.
-    pub fn len(&self) -> usize {
+    pub fn vectors(&self) -> usize {
         match self {
             Input::Texts { texts, .. } => texts.len(),
             Input::Late { docs, .. } => docs.iter().map(|(_, c)| c.len()).sum(),
@@ -341,7 +341,7 @@ fn embed_job(
     poll: &mut dyn FnMut(&mut u64),
 ) -> anyhow::Result<Option<Report>> {
     let embedder = embedder_for(job.encoding, factory, embedders)?;
-    let total = job.input.len();
+    let total = job.input.vectors();
     let mut vectors = Vec::with_capacity(total);
     let mut embedded = 0;
     let stale = |poll: &mut dyn FnMut(&mut u64)| {
