@@ -10,6 +10,7 @@ pub mod cache;
 pub mod compare;
 pub mod corpus;
 pub mod embed;
+pub mod extract;
 pub mod home;
 pub mod job;
 pub mod late;
