@@ -27,6 +27,7 @@ fn demo_docs(root: &std::path::Path) -> Vec<Document> {
             id: p.file_name().unwrap().to_string_lossy().into_owned(),
             origin: p.display().to_string(),
             text: std::fs::read_to_string(&p).unwrap(),
+            layout: None,
         })
         .collect()
 }
@@ -61,6 +62,7 @@ fn generated(demo: &[Document]) -> Vec<Document> {
                 id: format!("gen-{i:03}.md"),
                 origin: "generated".into(),
                 text,
+                layout: None,
             }
         })
         .collect()

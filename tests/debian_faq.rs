@@ -81,6 +81,7 @@ fn documents_and_questions(
             id: format!("chapter-{n:02}"),
             origin: "faq".into(),
             text: body.clone(),
+            layout: None,
         })
         .collect();
     let refs: Vec<Reference> = questions

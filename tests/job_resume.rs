@@ -192,6 +192,7 @@ fn library_job_streams_blocks_in_input_order() {
             id: format!("ch{i}"),
             origin: "faq".into(),
             text: t.to_string(),
+            layout: None,
         })
         .collect();
     let e = BertEmbedder::load(&common::model_dir(), &EmbedOptions::default()).unwrap();

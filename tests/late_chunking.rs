@@ -148,6 +148,7 @@ fn faq_chunks(n: usize) -> (Vec<String>, Vec<Vec<Range<usize>>>) {
             id: path.display().to_string(),
             origin: path.display().to_string(),
             text,
+            layout: None,
         };
         let (records, _) = kerf::job::cut_document(&plan, &counter, &doc).unwrap();
         ranges.push(records.iter().map(|r| r.bytes[0]..r.bytes[1]).collect());

@@ -33,6 +33,7 @@ fn demo_docs() -> Vec<Document> {
             id: p.file_name().unwrap().to_string_lossy().into_owned(),
             origin: p.display().to_string(),
             text: std::fs::read_to_string(&p).unwrap(),
+            layout: None,
         })
         .collect()
 }
@@ -296,6 +297,7 @@ fn board_scrolls_through_a_30000_word_document() {
         id: "long.md".into(),
         origin: "long.md".into(),
         text,
+        layout: None,
     }];
     let mut app = app_with(docs, false, (120, 40));
     app.update(Action::FocusDocument);

@@ -55,12 +55,8 @@ fn read_documents(input: &InputArgs) -> Result<(Vec<Document>, Vec<Notice>)> {
     let mut stream = kerf::corpus::DocStream::open(
         &input.paths,
         InputOptions {
-            text_field: input.text_field.clone(),
-            id_field: input.id_field.clone(),
             lossy: true,
-            stdin_jsonl: input.stdin_jsonl,
-            skip_broken_lines: input.skip_broken_lines,
-            ..InputOptions::default()
+            ..input.options()
         },
     )?;
     let mut docs = Vec::new();

@@ -21,6 +21,7 @@ mod probing;
 mod profilecmd;
 mod survey;
 mod sweepcmd;
+mod textcmd;
 
 #[derive(Parser)]
 #[command(
@@ -41,6 +42,9 @@ enum Command {
     Survey(survey::SurveyArgs),
     /// Cut documents into chunks that fit the window; writes JSONL.
     Cut(cut::CutArgs),
+    /// Print the text kerf reads from documents (for HTML and PDF, the extracted text chunk
+    /// byte ranges refer to), or with --jsonl each document's text, headings and pages.
+    Text(textcmd::TextArgs),
     /// Embed every chunk on CPU and write vectors (NumPy .npy or Parquet) with a manifest.
     Embed(embed::EmbedArgs),
     /// Compare plans against reference texts: rankings, metrics, shifts against the baseline.
@@ -57,7 +61,7 @@ enum Command {
 /// Inputs shared by every command that reads a corpus.
 #[derive(Args, Clone)]
 pub struct InputArgs {
-    /// Files, folders (walked for .txt, .md, .jsonl) or `-` for standard input.
+    /// Files, folders (walked for .txt, .md, .html, .jsonl) or `-` for standard input.
     #[arg(required = true)]
     pub paths: Vec<PathBuf>,
     /// JSONL field holding the text.
@@ -76,6 +80,13 @@ pub struct InputArgs {
     /// line number) instead of stopping at the first.
     #[arg(long)]
     pub skip_broken_lines: bool,
+    /// The JSONL text field holds HTML: extract its text and headings as for .html files.
+    #[arg(long)]
+    pub html_fields: bool,
+    /// Keep what kerf leaves out of HTML as page chrome: navigation, site headers and
+    /// footers, sidebars (scripts and styles are never text).
+    #[arg(long)]
+    pub html_keep_chrome: bool,
 }
 
 impl InputArgs {
@@ -94,13 +105,15 @@ impl InputArgs {
     }
 
     /// The reading options these flags ask for.
-    fn options(&self) -> InputOptions {
+    pub fn options(&self) -> InputOptions {
         InputOptions {
             text_field: self.text_field.clone(),
             id_field: self.id_field.clone(),
             lossy: self.lossy,
             stdin_jsonl: self.stdin_jsonl,
             skip_broken_lines: self.skip_broken_lines,
+            html_fields: self.html_fields,
+            html_keep_chrome: self.html_keep_chrome,
             ..InputOptions::default()
         }
     }
@@ -305,6 +318,7 @@ pub fn run() -> ExitCode {
         Command::Model(a) => modelcmd::run(a),
         Command::Survey(a) => survey::run(a),
         Command::Cut(a) => cut::run(a),
+        Command::Text(a) => textcmd::run(a),
         Command::Embed(a) => embed::run(a),
         Command::Compare(a) => comparecmd::run(a),
         Command::Sweep(a) => sweepcmd::run(a),

@@ -156,6 +156,33 @@ fn write_human(
         thousands(stats.p99),
         thousands(stats.max)
     )?;
+    for f in &stats.formats {
+        let mut line = format!(
+            "{}: {} document{}",
+            f.format.name(),
+            f.documents,
+            if f.documents == 1 { "" } else { "s" }
+        );
+        if f.format == kerf::extract::Format::Pdf {
+            line.push_str(&format!(
+                ", {} pages ({} without text)",
+                f.pages, f.empty_pages
+            ));
+        }
+        if f.format.is_extracted() {
+            line.push_str(&format!(
+                ", {} characters extracted, {} left out as boilerplate",
+                thousands(f.chars),
+                thousands(f.dropped_chars)
+            ));
+        }
+        line.push_str(&format!(
+            ", {} sections, longest section {} tokens",
+            thousands(f.sections),
+            thousands(f.longest_section_tokens)
+        ));
+        writeln!(out, "{line}")?;
+    }
     writeln!(out)?;
     let top = stats
         .histogram

@@ -1237,6 +1237,7 @@ mod tests {
                 id: f.to_string(),
                 origin: f.to_string(),
                 text: std::fs::read_to_string(root.join(f)).unwrap(),
+                layout: None,
             })
             .collect();
         let corpus = Corpus::new(docs, &counter).unwrap();

@@ -3,9 +3,14 @@
 //! Documents are read one at a time so memory stays flat however large the corpus is. Bad input
 //! is named precisely: invalid UTF-8 gives the file and byte offset, a JSONL line without its
 //! text field gives the file and line. Binary files are skipped with a notice, not an error.
+//! HTML pages (and JSONL fields holding HTML, when asked) go through [`crate::extract`] first,
+//! and their documents carry a [`Layout`] (format, headings, what was dropped).
 use std::collections::HashSet;
 use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use crate::extract::{self, Format, Layout};
 
 /// Errors reading input.
 #[derive(Debug, thiserror::Error)]
@@ -42,6 +47,9 @@ pub enum CorpusError {
         /// What is wrong.
         reason: String,
     },
+    /// A file could not be extracted (an encrypted or broken PDF, a scanned one).
+    #[error(transparent)]
+    Extract(#[from] extract::ExtractError),
     /// Two documents share an id.
     #[error("duplicate document id `{id}` (from {path}); ids must be unique")]
     DuplicateId {
@@ -76,11 +84,33 @@ fn parse_jsonl_line(
         Some(serde_json::Value::Number(n)) => n.to_string(),
         _ => format!("{file}:{line_no}"),
     };
+    let origin = format!("{}:{}", path.display(), line_no);
+    if opts.html_fields {
+        return Ok(html_document(id, origin, text.as_bytes(), opts));
+    }
     Ok(Document {
         id,
-        origin: format!("{}:{}", path.display(), line_no),
+        origin,
         text,
+        layout: None,
     })
+}
+
+/// A document from an HTML page's bytes.
+fn html_document(id: String, origin: String, bytes: &[u8], opts: &InputOptions) -> Document {
+    let (text, layout) = extract::html::extract(
+        bytes,
+        extract::html::HtmlOptions {
+            keep_chrome: opts.html_keep_chrome,
+        },
+    )
+    .into_parts(Format::Html);
+    Document {
+        id,
+        origin,
+        text,
+        layout: Some(Arc::new(layout)),
+    }
 }
 
 /// How inputs are read.
@@ -101,6 +131,10 @@ pub struct InputOptions {
     /// id seen, so memory grows with the corpus; a stage in someone else's pipeline, whose
     /// table owns its keys, turns it off to run in bounded memory on input of any length.
     pub check_unique_ids: bool,
+    /// JSONL text fields hold HTML: extract their text and headings as for .html files.
+    pub html_fields: bool,
+    /// Keep HTML navigation, headers, footers and the like (see [`extract::html`]).
+    pub html_keep_chrome: bool,
 }
 
 impl Default for InputOptions {
@@ -112,6 +146,8 @@ impl Default for InputOptions {
             stdin_jsonl: false,
             skip_broken_lines: false,
             check_unique_ids: true,
+            html_fields: false,
+            html_keep_chrome: false,
         }
     }
 }
@@ -124,8 +160,41 @@ pub struct Document {
     pub id: String,
     /// Where it came from, for messages.
     pub origin: String,
-    /// The text.
+    /// The text (for HTML and PDF, the text kerf extracted; byte ranges refer to it).
     pub text: String,
+    /// Format, headings and pages of an extracted document (`None`: the text as read).
+    pub layout: Option<Arc<Layout>>,
+}
+
+impl Document {
+    /// A document of plain text.
+    pub fn plain(
+        id: impl Into<String>,
+        origin: impl Into<String>,
+        text: impl Into<String>,
+    ) -> Self {
+        Self {
+            id: id.into(),
+            origin: origin.into(),
+            text: text.into(),
+            layout: None,
+        }
+    }
+
+    /// The format it was read from: its layout's, else what its origin's name says (plain
+    /// text when it says nothing).
+    pub fn format(&self) -> Format {
+        match &self.layout {
+            Some(l) => l.format,
+            None => match Format::of_path(Path::new(&self.origin)) {
+                Some(Format::Markdown) => Format::Markdown,
+                _ if self.origin.contains(".jsonl:") || self.origin.contains(".ndjson:") => {
+                    Format::Jsonl
+                }
+                _ => Format::Text,
+            },
+        }
+    }
 }
 
 /// Something skipped or worth telling, that is not an error.
@@ -144,7 +213,13 @@ enum Source {
     Stdin,
 }
 
-const TEXT_EXTENSIONS: [&str; 3] = ["txt", "md", "markdown"];
+/// Formats read from files found in a folder (JSONL aside).
+fn is_document_file(path: &Path) -> bool {
+    matches!(
+        Format::of_path(path),
+        Some(Format::Text | Format::Markdown | Format::Html)
+    )
+}
 
 fn is_jsonl(path: &Path) -> bool {
     matches!(
@@ -154,7 +229,7 @@ fn is_jsonl(path: &Path) -> bool {
 }
 
 /// Find the sources behind the given paths (`-` is standard input). Folders are walked in
-/// sorted order for .txt, .md and .jsonl files.
+/// sorted order for .txt, .md, .html and .jsonl files.
 fn discover(paths: &[PathBuf], notices: &mut Vec<Notice>) -> Result<Vec<Source>, CorpusError> {
     let mut out = Vec::new();
     for p in paths {
@@ -173,12 +248,12 @@ fn discover(paths: &[PathBuf], notices: &mut Vec<Notice>) -> Result<Vec<Source>,
                     .replace('\\', "/");
                 if is_jsonl(&f) {
                     out.push(Source::Jsonl { path: f });
-                } else if TEXT_EXTENSIONS.contains(&ext) {
+                } else if is_document_file(&f) {
                     out.push(Source::File { path: f, id: rel });
                 } else if !rel.starts_with('.') && !rel.contains("/.") && ext != "toml" {
                     notices.push(Notice {
                         origin: f.display().to_string(),
-                        message: "skipped: not a .txt, .md or .jsonl file".into(),
+                        message: "skipped: not a .txt, .md, .html or .jsonl file".into(),
                     });
                 }
             }
@@ -347,10 +422,19 @@ impl DocStream {
             });
             return None;
         }
+        if Format::of_path(path) == Some(Format::Html) {
+            return Some(Ok(html_document(
+                id,
+                path.display().to_string(),
+                &bytes,
+                &self.opts,
+            )));
+        }
         Some(decode(bytes, path, self.opts.lossy).map(|text| Document {
             id,
             origin: path.display().to_string(),
             text,
+            layout: None,
         }))
     }
 }
@@ -394,6 +478,7 @@ impl Iterator for DocStream {
                             id: "stdin".into(),
                             origin: "<stdin>".into(),
                             text,
+                            layout: None,
                         }),
                         Err(source) => Err(CorpusError::Io { path, source }),
                     }

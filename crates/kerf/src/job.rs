@@ -309,7 +309,7 @@ pub fn cut_document(
         .iter()
         .map(|c| c.content_tokens.saturating_sub(c.overlap_tokens))
         .collect();
-    let records = ChunkRecord::of_document(doc, &chunks, plan);
+    let records = ChunkRecord::of_document(doc, &an.segments.paragraphs, &chunks, plan);
     Ok((records, new_tokens))
 }
 

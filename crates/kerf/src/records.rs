@@ -2,18 +2,21 @@
 use serde::{Deserialize, Serialize};
 
 use crate::corpus::Document;
+use crate::extract::sections::{self, SectionIndex};
+use crate::extract::Format;
 use crate::plan::ResolvedPlan;
-use crate::segment::LineIndex;
+use crate::segment::{LineIndex, Paragraph};
 use crate::split::Chunk;
 
 /// One chunk as written to JSONL.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 pub struct ChunkRecord {
     /// Document id.
     pub doc: String,
     /// Chunk index within the document, from 0.
     pub chunk: usize,
-    /// Byte range `[start, end)` in the source document.
+    /// Byte range `[start, end)` in the source document (for HTML and PDF, in the text kerf
+    /// extracted from it: see `extracted`).
     pub bytes: [usize; 2],
     /// 1-based first and last line.
     pub lines: [usize; 2],
@@ -25,20 +28,71 @@ pub struct ChunkRecord {
     pub sentences: [usize; 2],
     /// The chunk's text, exactly `source[bytes]`.
     pub text: String,
+    /// The headings the chunk starts under, outermost first (empty: none).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub section: Vec<String>,
+    /// First and last page (PDF).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pages: Option<[usize; 2]>,
+    /// Set when the document's text was extracted from another format (`html`, `pdf`): then
+    /// `bytes` and `lines` refer to the extracted text, which `kerf text FILE` prints.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub extracted: Option<Format>,
+}
+
+/// What a document's records need to know of its structure: where its sections start and, for
+/// a PDF, its pages.
+pub struct DocIndex<'d> {
+    lines: LineIndex,
+    sections: SectionIndex,
+    pages: &'d [std::ops::Range<usize>],
+    extracted: Option<Format>,
+}
+
+impl<'d> DocIndex<'d> {
+    /// Index a document; `paragraphs` are its segmenter paragraphs (they give Markdown and
+    /// plain-text headings; an extracted document brings its own).
+    pub fn new(doc: &'d Document, paragraphs: &[Paragraph]) -> Self {
+        let (headings, pages, extracted) = match &doc.layout {
+            Some(l) => (
+                std::borrow::Cow::Borrowed(l.headings.as_slice()),
+                l.pages.as_slice(),
+                l.format.is_extracted().then_some(l.format),
+            ),
+            None => (
+                std::borrow::Cow::Owned(sections::from_paragraphs(&doc.text, paragraphs)),
+                &[][..],
+                None,
+            ),
+        };
+        Self {
+            lines: LineIndex::new(&doc.text),
+            sections: SectionIndex::new(&headings),
+            pages,
+            extracted,
+        }
+    }
 }
 
 impl ChunkRecord {
-    /// The records of a document's chunks (its lines indexed once).
-    pub fn of_document(doc: &Document, chunks: &[Chunk], plan: &ResolvedPlan) -> Vec<Self> {
-        let lines = LineIndex::new(&doc.text);
+    /// The records of a document's chunks (its lines and sections indexed once);
+    /// `paragraphs` are the document's segmenter paragraphs.
+    pub fn of_document(
+        doc: &Document,
+        paragraphs: &[Paragraph],
+        chunks: &[Chunk],
+        plan: &ResolvedPlan,
+    ) -> Vec<Self> {
+        let index = DocIndex::new(doc, paragraphs);
         chunks
             .iter()
-            .map(|c| Self::new(doc, c, plan, &lines))
+            .map(|c| Self::new(doc, c, plan, &index))
             .collect()
     }
 
-    /// Build the record of a chunk; `lines` indexes the document's text.
-    pub fn new(doc: &Document, chunk: &Chunk, plan: &ResolvedPlan, lines: &LineIndex) -> Self {
+    /// Build the record of a chunk; `index` indexes the document.
+    pub fn new(doc: &Document, chunk: &Chunk, plan: &ResolvedPlan, index: &DocIndex<'_>) -> Self {
+        let lines = &index.lines;
         let b = &chunk.byte_range;
         Self {
             doc: doc.id.clone(),
@@ -52,6 +106,9 @@ impl ChunkRecord {
             overlap: chunk.overlap_tokens,
             sentences: [chunk.sentence_range.start, chunk.sentence_range.end],
             text: doc.text[b.clone()].to_string(),
+            section: index.sections.path_at(b.start),
+            pages: sections::pages_of(index.pages, b),
+            extracted: index.extracted,
         }
     }
 }

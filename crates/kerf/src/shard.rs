@@ -192,6 +192,7 @@ mod tests {
                 id: id.into(),
                 origin: id.into(),
                 text: "x".into(),
+                layout: None,
             })
         };
         let s = Shard::new(shard_of("b", 2), 2).unwrap();

@@ -5,6 +5,7 @@
 use serde::Serialize;
 
 use crate::corpus::Document;
+use crate::extract::{sections, Format};
 use crate::plan::ResolvedPlan;
 use crate::segment::{self, Segments};
 use crate::tokens::{TokenCounter, Tokenized, TokensError};
@@ -63,6 +64,35 @@ pub struct DocStats {
     pub longest_sentence_line: usize,
     /// Sentences that alone exceed the chunk budget.
     pub oversize: Vec<Oversize>,
+    /// The format it was read from.
+    pub format: Format,
+    /// Pages (PDF).
+    pub pages: usize,
+    /// Pages without text (PDF).
+    pub empty_pages: usize,
+    /// Characters of boilerplate extraction left out (HTML chrome, PDF running lines).
+    pub dropped_chars: usize,
+    /// Headings found (the sections of the document).
+    pub sections: usize,
+    /// Content tokens of the longest section (from one heading to the next; the text before
+    /// the first heading counts as a section).
+    pub longest_section_tokens: usize,
+}
+
+/// Content tokens of each section of a document: from each heading's start to the next's,
+/// the text before the first heading included when there is any.
+pub fn section_tokens(token_starts: &[usize], heading_starts: &[usize]) -> Vec<usize> {
+    let mut bounds: Vec<usize> = vec![0];
+    bounds.extend(heading_starts.iter().copied().filter(|&s| s > 0));
+    bounds.push(usize::MAX);
+    bounds
+        .windows(2)
+        .map(|w| {
+            token_starts.partition_point(|&t| t < w[1])
+                - token_starts.partition_point(|&t| t < w[0])
+        })
+        .filter(|&n| n > 0)
+        .collect()
 }
 
 /// Windows needed to cover `n` tokens with windows of `budget` tokens sharing `overlap`.
@@ -111,6 +141,13 @@ pub fn doc_stats(doc: &Document, a: &Analysis, plan: &ResolvedPlan) -> DocStats 
         }
     }
     let unseen = n.saturating_sub(budget);
+    let headings = match &doc.layout {
+        Some(l) => l.headings.clone(),
+        None => sections::from_paragraphs(text, &a.segments.paragraphs),
+    };
+    let token_starts: Vec<usize> = a.tokens.offsets.iter().map(|r| r.start).collect();
+    let heading_starts: Vec<usize> = headings.iter().map(|h| h.bytes.start).collect();
+    let report = doc.layout.as_ref().map(|l| &l.report);
     DocStats {
         id: doc.id.clone(),
         chars: text.chars().count(),
@@ -132,6 +169,15 @@ pub fn doc_stats(doc: &Document, a: &Analysis, plan: &ResolvedPlan) -> DocStats 
             segment::line_of(text, longest.1)
         },
         oversize,
+        format: doc.format(),
+        pages: report.map_or(0, |r| r.pages),
+        empty_pages: report.map_or(0, |r| r.empty_pages),
+        dropped_chars: report.map_or(0, |r| r.dropped_chars),
+        sections: headings.len(),
+        longest_section_tokens: section_tokens(&token_starts, &heading_starts)
+            .into_iter()
+            .max()
+            .unwrap_or(0),
     }
 }
 
@@ -185,6 +231,51 @@ pub struct CorpusStats {
     pub max: usize,
     /// Length distribution, bins whose width is the chunk budget.
     pub histogram: Vec<Bin>,
+    /// Figures per input format, in a fixed order (formats with no document left out).
+    pub formats: Vec<FormatStats>,
+}
+
+/// Census of the documents of one format.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FormatStats {
+    /// The format.
+    pub format: Format,
+    /// Documents.
+    pub documents: usize,
+    /// Pages (PDF).
+    pub pages: usize,
+    /// Characters of text read or extracted.
+    pub chars: usize,
+    /// Characters of boilerplate left out.
+    pub dropped_chars: usize,
+    /// Pages without text.
+    pub empty_pages: usize,
+    /// Headings found.
+    pub sections: usize,
+    /// Content tokens of the longest section.
+    pub longest_section_tokens: usize,
+}
+
+/// Per-format figures of document censuses.
+pub fn by_format(docs: &[DocStats]) -> Vec<FormatStats> {
+    let mut out: Vec<FormatStats> = Vec::new();
+    let mut formats: Vec<Format> = docs.iter().map(|d| d.format).collect();
+    formats.sort();
+    formats.dedup();
+    for f in formats {
+        let of = docs.iter().filter(|d| d.format == f);
+        out.push(FormatStats {
+            format: f,
+            documents: of.clone().count(),
+            pages: of.clone().map(|d| d.pages).sum(),
+            chars: of.clone().map(|d| d.chars).sum(),
+            dropped_chars: of.clone().map(|d| d.dropped_chars).sum(),
+            empty_pages: of.clone().map(|d| d.empty_pages).sum(),
+            sections: of.clone().map(|d| d.sections).sum(),
+            longest_section_tokens: of.map(|d| d.longest_section_tokens).max().unwrap_or(0),
+        });
+    }
+    out
 }
 
 /// Nearest-rank percentile of sorted values (the definition in common use for reports).
@@ -254,6 +345,7 @@ pub fn summarize(docs: &[DocStats], plan: &ResolvedPlan) -> CorpusStats {
         p99: percentile(&lengths, 99.0),
         max: lengths.last().copied().unwrap_or(0),
         histogram: histogram(&lengths, plan.budget(), 24),
+        formats: by_format(docs),
     }
 }
 
@@ -281,6 +373,17 @@ mod tests {
         assert_eq!(percentile(&v, 50.0), 35);
         assert_eq!(percentile(&v, 100.0), 50);
         assert_eq!(percentile(&[], 50.0), 0);
+    }
+
+    #[test]
+    fn sections_split_tokens_at_headings() {
+        // Tokens start at 0, 5, 10, ..., 45; headings at 0 and 20: sections of 4 and 6 tokens.
+        let t: Vec<usize> = (0..10).map(|i| i * 5).collect();
+        assert_eq!(section_tokens(&t, &[0, 20]), [4, 6]);
+        // Text before the first heading is a section of its own.
+        assert_eq!(section_tokens(&t, &[20]), [4, 6]);
+        assert_eq!(section_tokens(&t, &[]), [10]);
+        assert_eq!(section_tokens(&[], &[3]), Vec::<usize>::new());
     }
 
     #[test]

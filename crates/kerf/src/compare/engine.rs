@@ -443,11 +443,13 @@ mod tests {
                 id: "boiler".into(),
                 origin: "t".into(),
                 text: String::new(),
+                layout: None,
             },
             Document {
                 id: "timetable".into(),
                 origin: "t".into(),
                 text: String::new(),
+                layout: None,
             },
         ];
         let corpus = Corpus {

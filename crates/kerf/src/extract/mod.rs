@@ -11,6 +11,9 @@ use std::ops::Range;
 
 use serde::Serialize;
 
+pub mod html;
+pub mod sections;
+
 /// A heading found in a document.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct Heading {
@@ -49,8 +52,90 @@ pub struct Extracted {
     pub headings: Vec<Heading>,
     /// PDF: the byte range of each page's text in `text`, page 1 first. Empty otherwise.
     pub pages: Vec<Range<usize>>,
+    /// The document's own title (HTML `<title>`, PDF document information), when it has one.
+    pub title: Option<String>,
     /// What was left out.
     pub report: ExtractReport,
+}
+
+/// The formats kerf reads.
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, serde::Deserialize,
+)]
+#[serde(rename_all = "lowercase")]
+pub enum Format {
+    /// Plain text.
+    Text,
+    /// Markdown.
+    Markdown,
+    /// A JSONL field.
+    Jsonl,
+    /// HTML, extracted.
+    Html,
+    /// PDF, extracted.
+    Pdf,
+}
+
+impl Format {
+    /// The format a file name says (`None`: not one kerf reads as a document file).
+    pub fn of_path(path: &std::path::Path) -> Option<Format> {
+        let ext = path.extension()?.to_str()?.to_ascii_lowercase();
+        Some(match ext.as_str() {
+            "txt" | "text" => Format::Text,
+            "md" | "markdown" => Format::Markdown,
+            "jsonl" | "ndjson" => Format::Jsonl,
+            "html" | "htm" | "xhtml" => Format::Html,
+            "pdf" => Format::Pdf,
+            _ => return None,
+        })
+    }
+
+    /// Its name in reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::Text => "text",
+            Format::Markdown => "markdown",
+            Format::Jsonl => "jsonl",
+            Format::Html => "html",
+            Format::Pdf => "pdf",
+        }
+    }
+
+    /// True for formats whose text kerf extracted (byte ranges refer to the extracted text).
+    pub fn is_extracted(self) -> bool {
+        matches!(self, Format::Html | Format::Pdf)
+    }
+}
+
+/// What a document's text carries beside itself: its format, headings and pages.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct Layout {
+    /// The format it was read from.
+    pub format: Format,
+    /// The document's own title, when it has one.
+    pub title: Option<String>,
+    /// Headings in document order.
+    pub headings: Vec<Heading>,
+    /// PDF: each page's byte range in the text.
+    pub pages: Vec<Range<usize>>,
+    /// What extraction left out.
+    pub report: ExtractReport,
+}
+
+impl Extracted {
+    /// The text and the layout around it.
+    pub fn into_parts(self, format: Format) -> (String, Layout) {
+        (
+            self.text,
+            Layout {
+                format,
+                title: self.title,
+                headings: self.headings,
+                pages: self.pages,
+                report: self.report,
+            },
+        )
+    }
 }
 
 /// Why a file could not be extracted. Every message starts with the file.

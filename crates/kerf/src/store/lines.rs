@@ -231,6 +231,7 @@ mod tests {
             overlap: 0,
             sentences: [0, 1],
             text: "0123456789".into(),
+            ..Default::default()
         }
     }
 

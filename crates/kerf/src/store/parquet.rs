@@ -1,11 +1,14 @@
 //! Parquet tables of chunks and documents with their vectors, written a block at a time.
 //!
 //! Each block of the embedding job becomes one row group, flushed as the block ends, so the
-//! writer never holds more than one block. Vectors are fixed-size lists of f32 (`vector`).
+//! writer never holds more than one block. Vectors are fixed-size lists of f32 (`vector`); a
+//! chunk's section path is a list of strings (`section`, outermost heading first) and its pages
+//! (`page_first`, `page_last`) are null unless the document was a PDF.
 use std::fs::File;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
+use arrow_array::builder::{ListBuilder, StringBuilder};
 use arrow_array::{
     ArrayRef, FixedSizeListArray, Float32Array, RecordBatch, StringArray, UInt32Array, UInt64Array,
 };
@@ -35,8 +38,26 @@ pub fn chunk_schema(dim: usize) -> Schema {
         Field::new("byte_end", DataType::UInt64, false),
         Field::new("tokens", DataType::UInt32, false),
         Field::new("text", DataType::Utf8, false),
+        Field::new(
+            "section",
+            DataType::List(Arc::new(Field::new("item", DataType::Utf8, true))),
+            false,
+        ),
+        Field::new("page_first", DataType::UInt32, true),
+        Field::new("page_last", DataType::UInt32, true),
         vector_field(dim),
     ])
+}
+
+fn section_array(sections: Vec<Vec<String>>) -> ArrayRef {
+    let mut b = ListBuilder::new(StringBuilder::new());
+    for s in sections {
+        for t in s {
+            b.values().append_value(t);
+        }
+        b.append(true);
+    }
+    Arc::new(b.finish())
 }
 
 /// The columns of `documents.parquet`.
@@ -56,6 +77,9 @@ struct ChunkRows {
     byte_end: Vec<u64>,
     tokens: Vec<u32>,
     text: Vec<String>,
+    section: Vec<Vec<String>>,
+    page_first: Vec<Option<u32>>,
+    page_last: Vec<Option<u32>>,
     vectors: Vec<f32>,
 }
 
@@ -152,6 +176,9 @@ impl ParquetPair {
         rows.byte_end.push(r.bytes[1] as u64);
         rows.tokens.push(r.tokens as u32);
         rows.text.push(r.text.clone());
+        rows.section.push(r.section.clone());
+        rows.page_first.push(r.pages.map(|p| p[0] as u32));
+        rows.page_last.push(r.pages.map(|p| p[1] as u32));
         rows.vectors.extend_from_slice(vector);
         Ok(())
     }
@@ -174,6 +201,9 @@ impl ParquetPair {
             Arc::new(UInt64Array::from(r.byte_end)),
             Arc::new(UInt32Array::from(r.tokens)),
             Arc::new(StringArray::from(r.text)),
+            section_array(r.section),
+            Arc::new(UInt32Array::from(r.page_first)),
+            Arc::new(UInt32Array::from(r.page_last)),
             vector_array(self.dim, r.vectors),
         ])?;
         let ids = std::mem::take(&mut self.doc_ids);
@@ -207,6 +237,7 @@ mod tests {
             overlap: 0,
             sentences: [0, 1],
             text: text.into(),
+            ..Default::default()
         }
     }
 
@@ -245,6 +276,9 @@ mod tests {
                 "byte_end",
                 "tokens",
                 "text",
+                "section",
+                "page_first",
+                "page_last",
                 "vector"
             ]
         );
