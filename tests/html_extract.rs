@@ -18,7 +18,8 @@ fn faq_html() -> Vec<(PathBuf, Extracted)> {
         .map(|e| e.unwrap().path())
         .filter(|p| p.to_string_lossy().ends_with(".en.html"))
         .map(|p| {
-            let e = html::extract(&std::fs::read(&p).unwrap(), HtmlOptions::default());
+            let e =
+                html::extract(&std::fs::read(&p).unwrap(), "faq", HtmlOptions::default()).unwrap();
             let n = e
                 .title
                 .as_deref()
@@ -196,7 +197,12 @@ fn chunks_of_faq_html_name_their_question_and_bytes_point_into_the_extracted_tex
         text_out.to_str().unwrap(),
     ]));
     let text = std::fs::read_to_string(&text_out).unwrap();
-    let e = html::extract(&std::fs::read(&page).unwrap(), HtmlOptions::default());
+    let e = html::extract(
+        &std::fs::read(&page).unwrap(),
+        "faq",
+        HtmlOptions::default(),
+    )
+    .unwrap();
     assert_eq!(text, e.text, "kerf text prints the extracted text");
     let starts: std::collections::HashMap<usize, &str> = e
         .headings
@@ -259,22 +265,33 @@ fn hostile_pages_are_read_or_refused_plainly() {
     )
     .unwrap();
     let t = std::time::Instant::now();
-    let e = html::extract(&std::fs::read(&big).unwrap(), HtmlOptions::default());
-    println!("50 MB page extracted in {:.1} s", t.elapsed().as_secs_f64());
-    assert_eq!(e.text.matches("Pennick Halt").count(), n);
-    // 200,000 nested elements: no stack overflow in the binary either.
-    let deep = tmp.path().join("deep.html");
-    std::fs::write(
-        &deep,
-        format!(
-            "{}<p>Carn curves rail wear.</p>{}",
-            "<div><span>".repeat(100_000),
-            "</span></div>".repeat(100_000)
-        ),
+    let e = html::extract(
+        &std::fs::read(&big).unwrap(),
+        "big.html",
+        HtmlOptions::default(),
     )
     .unwrap();
+    println!("50 MB page extracted in {:.1} s", t.elapsed().as_secs_f64());
+    assert_eq!(e.text.matches("Pennick Halt").count(), n);
+    // Nested to the limit: read (the walk does not recurse). Far past it: refused with the
+    // file named and a non-zero exit, where a parser would spend minutes.
+    let deep = tmp.path().join("deep.html");
+    let nest = |n: usize| {
+        format!(
+            "{}<p>Carn curves rail wear.</p>{}",
+            "<div><span>".repeat(n / 2),
+            "</span></div>".repeat(n / 2)
+        )
+    };
+    std::fs::write(&deep, nest(html::MAX_NESTING)).unwrap();
     let out = common::ok(&kerf_on(&deep, &["text"]));
     assert_eq!(out, "Carn curves rail wear.");
+    std::fs::write(&deep, nest(200_000)).unwrap();
+    let err = common::fails(&kerf_on(&deep, &["text"]));
+    assert!(
+        err.contains("deep.html: elements nest about 200000 deep"),
+        "{err}"
+    );
     // Nothing readable: reported as empty, not embedded.
     let empty = tmp.path().join("empty.html");
     std::fs::write(

@@ -86,7 +86,7 @@ fn parse_jsonl_line(
     };
     let origin = format!("{}:{}", path.display(), line_no);
     if opts.html_fields {
-        return Ok(html_document(id, origin, text.as_bytes(), opts));
+        return html_document(id, origin, text.as_bytes(), opts).map_err(|e| e.to_string());
     }
     Ok(Document {
         id,
@@ -97,20 +97,26 @@ fn parse_jsonl_line(
 }
 
 /// A document from an HTML page's bytes.
-fn html_document(id: String, origin: String, bytes: &[u8], opts: &InputOptions) -> Document {
+fn html_document(
+    id: String,
+    origin: String,
+    bytes: &[u8],
+    opts: &InputOptions,
+) -> Result<Document, extract::ExtractError> {
     let (text, layout) = extract::html::extract(
         bytes,
+        &origin,
         extract::html::HtmlOptions {
             keep_chrome: opts.html_keep_chrome,
         },
-    )
+    )?
     .into_parts(Format::Html);
-    Document {
+    Ok(Document {
         id,
         origin,
         text,
         layout: Some(Arc::new(layout)),
-    }
+    })
 }
 
 /// How inputs are read.
@@ -423,12 +429,10 @@ impl DocStream {
             return None;
         }
         if Format::of_path(path) == Some(Format::Html) {
-            return Some(Ok(html_document(
-                id,
-                path.display().to_string(),
-                &bytes,
-                &self.opts,
-            )));
+            return Some(
+                html_document(id, path.display().to_string(), &bytes, &self.opts)
+                    .map_err(CorpusError::from),
+            );
         }
         Some(decode(bytes, path, self.opts.lossy).map(|text| Document {
             id,

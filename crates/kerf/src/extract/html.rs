@@ -21,7 +21,85 @@ use ego_tree::iter::Edge;
 use scraper::node::{Element, Node};
 use scraper::Html;
 
-use super::{Extracted, Heading};
+use super::{ExtractError, Extracted, Heading};
+
+/// Deepest element nesting read. An HTML5 parser checks the stack of open elements for many
+/// tags, so a page nested hundreds of thousands deep takes minutes; real pages stay far below
+/// this (browsers themselves cap the depth their trees are built to).
+pub const MAX_NESTING: usize = 5_000;
+
+/// Elements that never hold content, or whose end tag may be left out (the parser closes
+/// them by itself), so they do not count towards nesting.
+fn nests(name: &[u8]) -> bool {
+    !matches!(
+        name,
+        b"area"
+            | b"base"
+            | b"br"
+            | b"col"
+            | b"embed"
+            | b"hr"
+            | b"img"
+            | b"input"
+            | b"link"
+            | b"meta"
+            | b"source"
+            | b"track"
+            | b"wbr"
+            | b"p"
+            | b"li"
+            | b"dt"
+            | b"dd"
+            | b"tr"
+            | b"td"
+            | b"th"
+            | b"option"
+            | b"optgroup"
+            | b"thead"
+            | b"tbody"
+            | b"tfoot"
+            | b"colgroup"
+            | b"caption"
+            | b"rb"
+            | b"rt"
+            | b"rp"
+            | b"html"
+            | b"head"
+            | b"body"
+    )
+}
+
+/// How deep the page's tags nest, counted from the bytes without parsing: start tags of
+/// elements that nest, less end tags (an estimate, close enough to refuse adversarial pages).
+pub fn nesting_estimate(bytes: &[u8]) -> usize {
+    let (mut depth, mut max) = (0usize, 0usize);
+    let mut i = 0;
+    while let Some(p) = bytes[i..].iter().position(|&b| b == b'<') {
+        i += p + 1;
+        let close = bytes.get(i) == Some(&b'/');
+        let start = i + usize::from(close);
+        let len = bytes[start..]
+            .iter()
+            .take_while(|b| b.is_ascii_alphanumeric())
+            .count();
+        if len == 0 {
+            continue;
+        }
+        let name = bytes[start..start + len].to_ascii_lowercase();
+        if !nests(&name) {
+            continue;
+        }
+        let tag_end = bytes[start..].iter().position(|&b| b == b'>');
+        let self_closing = tag_end.is_some_and(|e| e > 0 && bytes[start + e - 1] == b'/');
+        if close {
+            depth = depth.saturating_sub(1);
+        } else if !self_closing {
+            depth += 1;
+            max = max.max(depth);
+        }
+    }
+    max
+}
 
 /// How to read HTML.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -303,8 +381,22 @@ impl Writer {
 }
 
 /// Extract a page's readable text and headings. HTML parsing never fails (the standard says
-/// how to read any bytes), so neither does this; what was left out is in the report.
-pub fn extract(bytes: &[u8], options: HtmlOptions) -> Extracted {
+/// how to read any bytes); only a page nested deeper than [`MAX_NESTING`] is refused. What
+/// was left out is in the report.
+pub fn extract(
+    bytes: &[u8],
+    origin: &str,
+    options: HtmlOptions,
+) -> Result<Extracted, ExtractError> {
+    let depth = nesting_estimate(bytes);
+    if depth > MAX_NESTING {
+        return Err(ExtractError::Broken {
+            origin: origin.to_string(),
+            detail: format!(
+                "elements nest about {depth} deep; kerf reads pages nested at most {MAX_NESTING} deep (an HTML parser would take minutes over this one)"
+            ),
+        });
+    }
     let (text, _) = decode(bytes);
     let page = Html::parse_document(&text);
     let mut w = Writer::default();
@@ -403,7 +495,7 @@ pub fn extract(bytes: &[u8], options: HtmlOptions) -> Extracted {
         }
     }
     w.flush(heading.map(|h| h.0));
-    Extracted {
+    Ok(Extracted {
         text: w.out,
         headings: w.headings,
         pages: Vec::new(),
@@ -413,7 +505,7 @@ pub fn extract(bytes: &[u8], options: HtmlOptions) -> Extracted {
             dropped: dropped.into_iter().collect(),
             ..Default::default()
         },
-    }
+    })
 }
 
 #[cfg(test)]
@@ -421,7 +513,11 @@ mod tests {
     use super::*;
 
     fn text_of(html: &str) -> Extracted {
-        extract(html.as_bytes(), HtmlOptions::default())
+        extract(html.as_bytes(), "t.html", HtmlOptions::default()).unwrap()
+    }
+
+    fn of_bytes(html: &[u8]) -> Extracted {
+        extract(html, "t.html", HtmlOptions::default()).unwrap()
     }
 
     #[test]
@@ -455,8 +551,10 @@ mod tests {
         // Kept on request: the navigation, never the script.
         let kept = extract(
             b"<body><nav>Home</nav><p>Body</p><script>x()</script></body>",
+            "t.html",
             HtmlOptions { keep_chrome: true },
-        );
+        )
+        .unwrap();
         assert_eq!(kept.text, "Home\n\nBody");
     }
 
@@ -473,29 +571,44 @@ mod tests {
         let mut page = b"<meta charset=\"iso-8859-1\"><p>Caf".to_vec();
         page.push(0xe9);
         page.extend_from_slice(b"</p>");
-        let e = extract(&page, HtmlOptions::default());
+        let e = of_bytes(&page);
         assert_eq!(e.text, "Café");
         let http = b"<meta http-equiv=\"Content-Type\" content=\"text/html; charset=windows-1251\"><p>\xcf\xf0\xe8</p>";
-        assert_eq!(extract(http, HtmlOptions::default()).text, "При");
+        assert_eq!(of_bytes(http).text, "При");
         // Undeclared and not UTF-8: windows-1252.
-        assert_eq!(
-            extract(b"<p>na\xefve</p>", HtmlOptions::default()).text,
-            "naïve"
-        );
+        assert_eq!(of_bytes(b"<p>na\xefve</p>").text, "naïve");
         // A byte-order mark wins over the declaration.
         let mut bom = vec![0xef, 0xbb, 0xbf];
         bom.extend_from_slice("<meta charset=\"koi8-r\"><p>Zoë</p>".as_bytes());
-        assert_eq!(extract(&bom, HtmlOptions::default()).text, "Zoë");
+        assert_eq!(of_bytes(&bom).text, "Zoë");
     }
 
     #[test]
-    fn deep_nesting_does_not_exhaust_the_stack() {
-        let depth = 100_000;
-        let page = format!(
-            "{}<p>deep</p>{}",
-            "<div>".repeat(depth),
-            "</div>".repeat(depth)
+    fn nesting_is_read_to_the_limit_and_refused_past_it() {
+        let nest = |depth: usize| {
+            format!(
+                "{}<p>deep<br/><img src=x></p>{}",
+                "<div>".repeat(depth),
+                "</div>".repeat(depth)
+            )
+        };
+        assert_eq!(nesting_estimate(nest(MAX_NESTING).as_bytes()), MAX_NESTING);
+        // Walked without recursion: a page at the limit is read.
+        assert_eq!(text_of(&nest(MAX_NESTING)).text, "deep");
+        let e = extract(
+            nest(MAX_NESTING + 1).as_bytes(),
+            "t.html",
+            HtmlOptions::default(),
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(
+            e.starts_with("t.html: elements nest about 5001 deep"),
+            "{e}"
         );
-        assert_eq!(text_of(&page).text, "deep");
+        // Paragraphs and list items left open do not count as nesting.
+        let open = "<p>one<li>two".repeat(20_000);
+        assert!(nesting_estimate(open.as_bytes()) < 10);
+        assert!(!text_of(&open).text.is_empty());
     }
 }
