@@ -63,43 +63,15 @@ fn similarity(a: &[String], b: &[String]) -> f64 {
     2.0 * matched as f64 / (a.len() + b.len()) as f64
 }
 
-/// The question headings of the plain-text edition (`1.2.\u{a0}What is ...?`, possibly over
-/// several lines), with their chapter number: the parse rule of tests/debian_faq.rs.
+/// The question headings of the plain-text edition with their chapter number (the parse rule
+/// of tests/reference/debian_faq.py, in tests/common/faq.rs).
 fn text_questions() -> Vec<(usize, String)> {
     let text = std::fs::read_to_string(common::testdata("debian-faq/debian-faq.en.txt")).unwrap();
-    let lines: Vec<&str> = text.split('\n').collect();
-    let mut out = Vec::new();
-    let mut chapter = 0;
-    let mut i = 0;
-    while i < lines.len() {
-        let l = lines[i];
-        if let Some(rest) = l.strip_prefix("Chapter\u{a0}") {
-            chapter = rest.split('.').next().unwrap().parse().unwrap();
-        } else if chapter > 0 {
-            if let Some((num, rest)) = l.split_once(".\u{a0}") {
-                let parts: Vec<&str> = num.split('.').collect();
-                if (parts.len() == 2 || parts.len() == 3)
-                    && parts
-                        .iter()
-                        .all(|p| !p.is_empty() && p.bytes().all(|b| b.is_ascii_digit()))
-                {
-                    let mut title = vec![rest.trim().to_string()];
-                    i += 1;
-                    while i < lines.len() && !lines[i].trim().is_empty() {
-                        title.push(lines[i].trim().to_string());
-                        i += 1;
-                    }
-                    let t = title.join(" ");
-                    if t.ends_with('?') {
-                        out.push((chapter, t));
-                    }
-                    continue;
-                }
-            }
-        }
-        i += 1;
-    }
-    out
+    common::faq::parse(&text)
+        .1
+        .into_iter()
+        .map(|(q, ch)| (ch, q))
+        .collect()
 }
 
 /// Letters and digits only, lower case: the plain-text edition wraps lines inside words

@@ -1,5 +1,6 @@
 //! Helpers shared by the integration tests.
 #![allow(dead_code)]
+pub mod faq;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
