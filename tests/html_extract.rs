@@ -154,7 +154,14 @@ fn chunks_of_faq_html_name_their_question_and_bytes_point_into_the_extracted_tex
     common::model_dir();
     let tmp = tempfile::tempdir().unwrap();
     let page = common::testdata("debian-faq/html/pkg-basics.en.html");
-    let profile = common::repo().join("profiles/sentences-128.toml");
+    let base = std::fs::read_to_string(common::repo().join("profiles/sentences-128.toml")).unwrap();
+    let profile = tmp.path().join("by-question.toml");
+    // Chapter (h1) and question (h2) headings start chunks.
+    std::fs::write(
+        &profile,
+        base.replace("[cut]\n", "[cut]\nheading_breaks = 2\n"),
+    )
+    .unwrap();
     let cut = common::ok(&common::kerf(&[
         "cut",
         "-p",
@@ -179,6 +186,7 @@ fn chunks_of_faq_html_name_their_question_and_bytes_point_into_the_extracted_tex
     let starts: std::collections::HashMap<usize, &str> = e
         .headings
         .iter()
+        .filter(|h| h.level <= 2)
         .map(|h| (h.bytes.start, h.title.as_str()))
         .collect();
     let mut at_heading = 0;
@@ -211,9 +219,9 @@ fn chunks_of_faq_html_name_their_question_and_bytes_point_into_the_extracted_tex
             assert_eq!(section.last(), Some(h), "{r}");
         }
     }
-    // Sentence chunks pack a heading with the text before it when it fits, so only some
-    // chunks start at one; every one that does is named after it.
-    assert!(at_heading >= 3, "{at_heading} chunks start at a heading");
+    // Every chapter and question heading starts a chunk, and that chunk is named after it.
+    assert_eq!(at_heading, starts.len(), "chunks starting at a heading");
+    assert!(at_heading >= 10, "{at_heading}");
 }
 
 fn kerf_on(path: &Path, args: &[&str]) -> std::process::Output {

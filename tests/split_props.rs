@@ -209,6 +209,51 @@ proptest! {
     }
 }
 
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 96, .. ProptestConfig::default() })]
+
+    /// With heading breaks at paragraph starts: chunks still fit, cover and overlap as above,
+    /// each break starts a chunk (when the section before it is at least the minimum chunk),
+    /// and no chunk reaches back across a break.
+    #[test]
+    fn heading_breaks_keep_the_fit_and_start_chunks(
+        text in text_strategy(),
+        boundary in prop::sample::select(vec![Boundary::Token, Boundary::Sentence, Boundary::Paragraph]),
+        window in 6usize..90,
+        overlap_frac in 0.0f64..0.6,
+        every in 1usize..4,
+    ) {
+        let window = window.max(2 + counter().piece_floor());
+        let budget = window - 2;
+        let overlap = ((budget as f64) * overlap_frac) as usize;
+        let plan = resolved(boundary, window, overlap.min(budget - 1), 0, "");
+        let an = survey::analyze(&text, counter()).unwrap();
+        let breaks: Vec<usize> = an
+            .segments
+            .paragraphs
+            .iter()
+            .step_by(every)
+            .map(|p| p.bytes.start)
+            .collect();
+        let recount = |t: &str| counter().count_content(t).unwrap();
+        let chunks = split::cut_at_headings(&text, &an.tokens, &an.segments, &plan.cut, &recount, &breaks);
+        check(&text, &chunks, &plan)?;
+        for &b in &breaks {
+            if an.tokens.offsets.iter().all(|o| o.start < b) {
+                continue; // nothing left after it
+            }
+            // The chunk holding the break's first token starts there.
+            let t = an.tokens.offsets.partition_point(|o| o.start < b);
+            let holder = chunks.iter().find(|c| c.token_range.contains(&t));
+            if let Some(c) = holder {
+                if t > 0 {
+                    prop_assert_eq!(c.token_range.start, t, "break at byte {} inside {:?}", b, c);
+                }
+            }
+        }
+    }
+}
+
 /// Token windows take the largest run of whole words that fits the asked overlap.
 #[test]
 fn token_overlap_is_exact_on_short_words() {

@@ -48,6 +48,9 @@ pub struct NewArgs {
     /// Prefix put before every chunk.
     #[arg(long, default_value = "")]
     pub prefix: String,
+    /// Headings of this level and above (1 = outermost) start a new chunk; 0: none do.
+    #[arg(long, default_value_t = 0)]
+    pub heading_breaks: u8,
     /// Token pooling: mean, cls, max.
     #[arg(long, default_value = "mean", value_parser = parse_enum::<TokenPooling>)]
     pub tokens: TokenPooling,
@@ -116,6 +119,13 @@ pub fn run(c: ProfileCmd) -> Result<()> {
                 r.prefix_tokens,
                 r.budget()
             )?;
+            if p.cut.heading_breaks > 0 {
+                writeln!(
+                    out,
+                    "# headings of level 1 to {} start a new chunk (a section under {} tokens may share one with the next)",
+                    p.cut.heading_breaks, p.cut.min_chunk
+                )?;
+            }
             if let Some(late) = p.pool.late() {
                 writeln!(
                     out,
@@ -134,6 +144,7 @@ pub fn run(c: ProfileCmd) -> Result<()> {
                     overlap: a.overlap,
                     min_chunk: a.min_chunk,
                     prefix: a.prefix,
+                    heading_breaks: a.heading_breaks,
                 },
                 pool: kerf::profile::PoolSection {
                     tokens: a.tokens,

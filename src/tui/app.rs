@@ -203,6 +203,7 @@ pub fn baseline_profile(info: &ModelInfo, model_folder: Option<PathBuf>) -> Prof
             overlap: 0,
             min_chunk: 0,
             prefix: String::new(),
+            heading_breaks: 0,
         },
         pool: kerf::profile::PoolSection {
             tokens: TokenPooling::Mean,

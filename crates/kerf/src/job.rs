@@ -304,7 +304,18 @@ pub fn cut_document(
 ) -> Result<CutRecords, TokensError> {
     let recount = |t: &str| counter.count_content(t).unwrap_or(usize::MAX);
     let an = survey::analyze(&doc.text, counter)?;
-    let chunks = split::cut(&doc.text, &an.tokens, &an.segments, &plan.cut, &recount);
+    let breaks = crate::extract::sections::break_starts(
+        &crate::extract::sections::of_document(doc, &an.segments.paragraphs),
+        plan.cut.heading_breaks,
+    );
+    let chunks = split::cut_at_headings(
+        &doc.text,
+        &an.tokens,
+        &an.segments,
+        &plan.cut,
+        &recount,
+        &breaks,
+    );
     let new_tokens = chunks
         .iter()
         .map(|c| c.content_tokens.saturating_sub(c.overlap_tokens))

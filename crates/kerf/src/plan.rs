@@ -16,8 +16,11 @@ pub struct CutPlan {
     pub budget_tokens: usize,
     /// Tokens a chunk should share with the one before (at most).
     pub overlap_tokens: usize,
-    /// A last chunk adding fewer tokens than this is merged back.
+    /// A last chunk adding fewer tokens than this is merged back; a section shorter than this
+    /// may share a chunk with the next one.
     pub min_chunk_tokens: usize,
+    /// Headings of this level and above start a new chunk (0: none do).
+    pub heading_breaks: u8,
 }
 
 /// A profile whose numbers have been checked against a model.
@@ -133,6 +136,7 @@ pub fn resolve(
             budget_tokens: budget,
             overlap_tokens: c.overlap,
             min_chunk_tokens: c.min_chunk,
+            heading_breaks: c.heading_breaks,
         },
     })
 }

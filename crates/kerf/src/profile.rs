@@ -209,6 +209,15 @@ pub struct CutSection {
     /// Text put before every chunk (some models expect one); its tokens count against the window.
     #[serde(default, skip_serializing_if = "String::is_empty")]
     pub prefix: String,
+    /// Headings of this level and above (1 = outermost) start a new chunk: no chunk crosses
+    /// one, unless the section before it is shorter than `min_chunk`. 0: headings are text
+    /// like any other.
+    #[serde(default, skip_serializing_if = "is_zero_u8")]
+    pub heading_breaks: u8,
+}
+
+fn is_zero_u8(n: &u8) -> bool {
+    *n == 0
 }
 
 impl Default for CutSection {
@@ -219,6 +228,7 @@ impl Default for CutSection {
             overlap: 0,
             min_chunk: 0,
             prefix: String::new(),
+            heading_breaks: 0,
         }
     }
 }
@@ -423,6 +433,12 @@ impl Profile {
             return bad(format!(
                 "[cut] min_chunk ({}) must be smaller than the window ({})",
                 c.min_chunk, c.window
+            ));
+        }
+        if c.heading_breaks > 6 {
+            return bad(format!(
+                "[cut] heading_breaks ({}) is a heading level: 1 (outermost) to 6, or 0 for none",
+                c.heading_breaks
             ));
         }
         if c.boundary == Boundary::Head && c.overlap > 0 {

@@ -53,17 +53,13 @@ impl<'d> DocIndex<'d> {
     /// Index a document; `paragraphs` are its segmenter paragraphs (they give Markdown and
     /// plain-text headings; an extracted document brings its own).
     pub fn new(doc: &'d Document, paragraphs: &[Paragraph]) -> Self {
-        let (headings, pages, extracted) = match &doc.layout {
+        let headings = sections::of_document(doc, paragraphs);
+        let (pages, extracted) = match &doc.layout {
             Some(l) => (
-                std::borrow::Cow::Borrowed(l.headings.as_slice()),
                 l.pages.as_slice(),
                 l.format.is_extracted().then_some(l.format),
             ),
-            None => (
-                std::borrow::Cow::Owned(sections::from_paragraphs(&doc.text, paragraphs)),
-                &[][..],
-                None,
-            ),
+            None => (&[][..], None),
         };
         Self {
             lines: LineIndex::new(&doc.text),

@@ -11,6 +11,11 @@
 //! the tokens it had inside the document, and token costs of neighbouring units add up. Only a
 //! piece that begins inside a word (a continuation piece) may re-encode differently; those are
 //! re-counted with the caller's `recount` function and shrunk until they fit.
+//!
+//! Heading breaks ([`cut_at_headings`]): a unit that starts at a chosen heading starts a new
+//! chunk, and no overlap reaches back across it, so no chunk crosses a section boundary; a
+//! section shorter than the minimum chunk gives up its break at the end and shares a chunk
+//! with the next section.
 use std::ops::Range;
 
 use serde::Serialize;
@@ -205,8 +210,41 @@ fn units_for(
     units
 }
 
-/// Greedy packing of units into unit-index ranges under the budget, with overlap.
-fn pack(units: &[Unit], plan: &CutPlan, first_only: bool) -> Vec<Range<usize>> {
+/// Which units start a new chunk: those beginning at one of the `breaks` (content-token
+/// indices), less the break that ends a section shorter than `min_section` tokens (that
+/// section then shares a chunk with the next one).
+fn break_units(units: &[Unit], breaks: &[usize], min_section: usize) -> Vec<bool> {
+    let mut flags = vec![false; units.len()];
+    let mut b = breaks.iter().peekable();
+    for (i, u) in units.iter().enumerate() {
+        while b.peek().is_some_and(|&&t| t < u.tokens.start) {
+            b.next();
+        }
+        if i > 0 && b.peek().is_some_and(|&&t| t == u.tokens.start) {
+            flags[i] = true;
+        }
+    }
+    if min_section > 0 {
+        let mut section_start = 0;
+        let mut cost = 0;
+        for i in 0..units.len() {
+            if flags[i] {
+                if cost < min_section && section_start < i {
+                    flags[i] = false;
+                } else {
+                    section_start = i;
+                    cost = 0;
+                }
+            }
+            cost += units[i].cost;
+        }
+    }
+    flags
+}
+
+/// Greedy packing of units into unit-index ranges under the budget, with overlap; a unit
+/// flagged in `breaks` always starts a chunk, with nothing shared across it.
+fn pack(units: &[Unit], plan: &CutPlan, first_only: bool, breaks: &[bool]) -> Vec<Range<usize>> {
     let budget = plan.budget_tokens;
     let mut out = Vec::new();
     let mut start = 0;
@@ -214,6 +252,9 @@ fn pack(units: &[Unit], plan: &CutPlan, first_only: bool) -> Vec<Range<usize>> {
         let mut end = start;
         let mut cost = 0;
         while end < units.len() && cost + units[end].cost <= budget {
+            if end > start && breaks[end] {
+                break;
+            }
             cost += units[end].cost;
             end += 1;
             if units[end - 1].glued_to_next {
@@ -224,6 +265,10 @@ fn pack(units: &[Unit], plan: &CutPlan, first_only: bool) -> Vec<Range<usize>> {
         out.push(start..end);
         if end == units.len() || first_only {
             break;
+        }
+        if breaks[end] {
+            start = end;
+            continue;
         }
         let mut next = end;
         let mut shared = 0;
@@ -241,13 +286,17 @@ fn pack(units: &[Unit], plan: &CutPlan, first_only: bool) -> Vec<Range<usize>> {
 
 /// Merge a short last chunk back: into the previous one when both fit together, otherwise by
 /// extending the last chunk backwards over whole units up to the budget.
-fn merge_tail(units: &[Unit], plan: &CutPlan, chunks: &mut Vec<Range<usize>>) {
+fn merge_tail(units: &[Unit], plan: &CutPlan, chunks: &mut Vec<Range<usize>>, breaks: &[bool]) {
     if chunks.len() < 2 || plan.min_chunk_tokens == 0 {
         return;
     }
     let cost = |r: Range<usize>| units[r].iter().map(|u| u.cost).sum::<usize>();
     let n = chunks.len();
     let (prev, last) = (chunks[n - 2].clone(), chunks[n - 1].clone());
+    // A last chunk that opens a section stays on its own side of the heading.
+    if breaks[prev.start + 1..last.end].iter().any(|&b| b) {
+        return;
+    }
     let new_tokens = cost(last.start.max(prev.end)..last.end);
     if new_tokens >= plan.min_chunk_tokens {
         return;
@@ -281,12 +330,30 @@ pub fn cut(
     plan: &CutPlan,
     recount: &dyn Fn(&str) -> usize,
 ) -> Vec<Chunk> {
+    cut_at_headings(text, tokens, segs, plan, recount, &[])
+}
+
+/// Cut one document so that a chunk starts at each byte offset of `heading_starts` (ascending;
+/// the headings chosen by the plan's `heading_breaks`), as [`cut`] does otherwise.
+pub fn cut_at_headings(
+    text: &str,
+    tokens: &Tokenized,
+    segs: &Segments,
+    plan: &CutPlan,
+    recount: &dyn Fn(&str) -> usize,
+    heading_starts: &[usize],
+) -> Vec<Chunk> {
     if tokens.is_empty() || plan.budget_tokens == 0 {
         return Vec::new();
     }
     let units = units_for(text, tokens, segs, plan, recount);
-    let mut ranges = pack(&units, plan, plan.boundary == Boundary::Head);
-    merge_tail(&units, plan, &mut ranges);
+    let break_tokens: Vec<usize> = heading_starts
+        .iter()
+        .map(|&b| tokens.offsets.partition_point(|o| o.start < b))
+        .collect();
+    let breaks = break_units(&units, &break_tokens, plan.min_chunk_tokens);
+    let mut ranges = pack(&units, plan, plan.boundary == Boundary::Head, &breaks);
+    merge_tail(&units, plan, &mut ranges, &breaks);
     let mut chunks: Vec<Chunk> = Vec::with_capacity(ranges.len());
     for (index, r) in ranges.into_iter().enumerate() {
         let token_range = units[r.start].tokens.start..units[r.end - 1].tokens.end;
@@ -347,6 +414,7 @@ mod tests {
 
     fn plan(boundary: Boundary, budget: usize, overlap: usize) -> CutPlan {
         CutPlan {
+            heading_breaks: 0,
             boundary,
             budget_tokens: budget,
             overlap_tokens: overlap,
@@ -409,6 +477,40 @@ mod tests {
         let spans: Vec<&str> = chunks.iter().map(|c| &text[c.byte_range.clone()]).collect();
         assert_eq!(spans, ["a b c d", "e f g h", "f g h i"]);
         assert_eq!(chunks[2].overlap_tokens, 3);
+    }
+
+    #[test]
+    fn heading_breaks_start_chunks_and_stop_overlap() {
+        let text = "Boiler\n\nTubes were renewed. Test passed.\n\nBrakes\n\nBlocks were worn. New ones fitted. Adjusted.";
+        let t = toy_tokens(text);
+        let s = segment::segment(text);
+        let brakes = text.find("Brakes").unwrap();
+        let p = plan(Boundary::Sentence, 10, 4);
+        // Without breaks the heading "Brakes" rides along with the boiler's sentences.
+        let plain = cut(text, &t, &s, &p, &toy_count);
+        assert!(plain[0].byte_range.contains(&brakes));
+        let chunks = cut_at_headings(text, &t, &s, &p, &toy_count, &[0, brakes]);
+        let spans: Vec<&str> = chunks.iter().map(|c| &text[c.byte_range.clone()]).collect();
+        assert_eq!(
+            spans,
+            [
+                "Boiler\n\nTubes were renewed. Test passed.",
+                "Brakes\n\nBlocks were worn. New ones fitted.",
+                "New ones fitted. Adjusted."
+            ]
+        );
+        // Nothing shared across the heading; overlap as usual inside the section.
+        assert_eq!(chunks[1].overlap_tokens, 0);
+        assert!(chunks[2].overlap_tokens > 0);
+        // A section shorter than the minimum chunk shares a chunk with the next one.
+        let mut q = plan(Boundary::Sentence, 30, 0);
+        q.min_chunk_tokens = 9;
+        let merged = cut_at_headings(text, &t, &s, &q, &toy_count, &[0, brakes]);
+        assert_eq!(merged.len(), 1, "the 8-token boiler section is under 9");
+        q.min_chunk_tokens = 8;
+        let kept = cut_at_headings(text, &t, &s, &q, &toy_count, &[0, brakes]);
+        assert_eq!(kept.len(), 2);
+        assert_eq!(kept[1].byte_range.start, brakes);
     }
 
     #[test]

@@ -141,10 +141,7 @@ pub fn doc_stats(doc: &Document, a: &Analysis, plan: &ResolvedPlan) -> DocStats 
         }
     }
     let unseen = n.saturating_sub(budget);
-    let headings = match &doc.layout {
-        Some(l) => l.headings.clone(),
-        None => sections::from_paragraphs(text, &a.segments.paragraphs),
-    };
+    let headings = sections::of_document(doc, &a.segments.paragraphs);
     let token_starts: Vec<usize> = a.tokens.offsets.iter().map(|r| r.start).collect();
     let heading_starts: Vec<usize> = headings.iter().map(|h| h.bytes.start).collect();
     let report = doc.layout.as_ref().map(|l| &l.report);

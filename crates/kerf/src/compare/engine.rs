@@ -52,7 +52,20 @@ pub fn cut_corpus(corpus: &Corpus, plan: &ResolvedPlan, counter: &TokenCounter) 
         .docs
         .par_iter()
         .zip(&corpus.analyses)
-        .map(|(d, a)| split::cut(&d.text, &a.tokens, &a.segments, &plan.cut, &recount))
+        .map(|(d, a)| {
+            let breaks = crate::extract::sections::break_starts(
+                &crate::extract::sections::of_document(d, &a.segments.paragraphs),
+                plan.cut.heading_breaks,
+            );
+            split::cut_at_headings(
+                &d.text,
+                &a.tokens,
+                &a.segments,
+                &plan.cut,
+                &recount,
+                &breaks,
+            )
+        })
         .collect()
 }
 

@@ -161,6 +161,9 @@ pub fn plan_name(p: &Profile) -> String {
     if p.cut.overlap > 0 {
         n.push_str(&format!("-o{}", p.cut.overlap));
     }
+    if p.cut.heading_breaks > 0 {
+        n.push_str(&format!("-h{}", p.cut.heading_breaks));
+    }
     n.push_str(&format!("-{tokens}-{}", p.pool.chunks.name()));
     if p.pool.context > 0 {
         n.push_str(&format!("-late{}", p.pool.context));
@@ -183,6 +186,8 @@ pub struct ChunkKey {
     pub overlap: usize,
     /// Minimum chunk.
     pub min_chunk: usize,
+    /// Heading level that starts a chunk.
+    pub heading_breaks: u8,
     /// Token pooling.
     pub tokens: String,
     /// Precision.
@@ -198,6 +203,7 @@ pub fn chunk_key(p: &Profile) -> ChunkKey {
         boundary: p.cut.boundary.name(),
         overlap: p.cut.overlap,
         min_chunk: p.cut.min_chunk,
+        heading_breaks: p.cut.heading_breaks,
         tokens: format!("{:?}", p.pool.tokens),
         precision: format!("{:?}", p.pool.precision),
         context: match p.pool.context {

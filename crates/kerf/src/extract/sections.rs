@@ -114,6 +114,33 @@ pub fn from_paragraphs(text: &str, paragraphs: &[Paragraph]) -> Vec<Heading> {
     out
 }
 
+/// A document's headings: those its extraction found, else those of its paragraphs.
+pub fn of_document<'d>(
+    doc: &'d crate::corpus::Document,
+    paragraphs: &[Paragraph],
+) -> std::borrow::Cow<'d, [Heading]> {
+    match &doc.layout {
+        Some(l) => std::borrow::Cow::Borrowed(l.headings.as_slice()),
+        None => std::borrow::Cow::Owned(from_paragraphs(&doc.text, paragraphs)),
+    }
+}
+
+/// Where the headings of level `level` and above start (byte offsets, ascending): the places
+/// a plan with `heading_breaks = level` starts a chunk. Empty for level 0.
+pub fn break_starts(headings: &[Heading], level: u8) -> Vec<usize> {
+    if level == 0 {
+        return Vec::new();
+    }
+    let mut v: Vec<usize> = headings
+        .iter()
+        .filter(|h| h.level <= level)
+        .map(|h| h.bytes.start)
+        .collect();
+    v.sort_unstable();
+    v.dedup();
+    v
+}
+
 /// For each heading, the index of the heading it sits under (`None` at the top): the nearest
 /// earlier heading of a smaller level number.
 pub fn parents(headings: &[Heading]) -> Vec<Option<usize>> {
