@@ -726,8 +726,8 @@ fn place_headings(text: &str, pages: &[Range<usize>], entries: &[OutlineEntry]) 
 /// Where a heading's title is in a page's text, searching from byte `from`: letters and digits
 /// compared case-insensitively, everything else (whitespace, punctuation, quotes the text layer
 /// draws differently) ignored. A match that starts a paragraph, perhaps after numbering such as
-/// "1.2.", is preferred to one inside running text; numbering right before a match is taken into
-/// the range.
+/// "1.2.", is preferred to one inside running text; numbering right before a match and closing
+/// punctuation right after it are taken into the range.
 pub fn place_heading(page: &str, from: usize, title: &str) -> Option<Range<usize>> {
     let want: Vec<char> = title
         .chars()
@@ -756,7 +756,13 @@ pub fn place_heading(page: &str, from: usize, title: &str) -> Option<Range<usize
             .all(|((c, _, _), w)| c == w)
         {
             let start = have[k].1;
-            let end = have[k + want.len() - 1].2;
+            let mut end = have[k + want.len() - 1].2;
+            // Closing punctuation of the title's last word ("?", "’", ")") is the heading's too.
+            end += page[end..]
+                .chars()
+                .take_while(|c| !c.is_whitespace() && !c.is_alphanumeric())
+                .map(char::len_utf8)
+                .sum::<usize>();
             let with_number = numbering_start(page, start);
             if starts_block(page, with_number) {
                 return Some(with_number..end);
