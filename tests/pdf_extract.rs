@@ -142,11 +142,16 @@ fn faq_pages_agree_with_pdftotext() {
     );
 }
 
+/// Chapters as (number, title).
+type Chapters = Vec<(usize, String)>;
+/// Questions as (title, chapter number).
+type Questions = Vec<(String, usize)>;
+
 /// Chapters (number, title) and questions (title, chapter) of the plain-text edition, by the
 /// parse rule of tests/debian_faq.rs (`parse`): "Chapter\u{a0}N.\u{a0}Title" lines, and
 /// numbered headings "N.M.\u{a0}..." (two or three numbers) running to the next blank line that
 /// end in "?".
-fn plain_text_questions(text: &str) -> (Vec<(usize, String)>, Vec<(String, usize)>) {
+fn plain_text_questions(text: &str) -> (Chapters, Questions) {
     let lines: Vec<&str> = text.split('\n').collect();
     let mut chapters = Vec::new();
     let mut questions = Vec::new();
@@ -168,7 +173,7 @@ fn plain_text_questions(text: &str) -> (Vec<(usize, String)>, Vec<(String, usize
             i += 1;
             continue;
         }
-        if let Some(&(ch, _)) = chapters.last().map(|c: &(usize, String)| c) {
+        if let Some(&(ch, _)) = chapters.last() {
             if let Some(first) = heading(l) {
                 let mut parts = vec![first];
                 i += 1;
