@@ -24,7 +24,7 @@ use kerf::survey;
 use kerf::tokens::TokenCounter;
 
 /// The targets, in the order `scripts/fuzz` runs them.
-pub const TARGETS: [&str; 7] = [
+pub const TARGETS: [&str; 9] = [
     "segment",
     "split",
     "profile",
@@ -32,6 +32,8 @@ pub const TARGETS: [&str; 7] = [
     "refs_trec",
     "jsonl",
     "cache",
+    "html",
+    "pdf",
 ];
 
 /// Run the check of `target` on one saved input (the split target's inputs are [`SplitCase`]
@@ -39,6 +41,8 @@ pub const TARGETS: [&str; 7] = [
 pub fn run(target: &str, data: &[u8]) {
     match target {
         "segment" => segment(data),
+        "html" => html(data),
+        "pdf" => pdf(data),
         "split" => {
             let case: SplitCase = serde_json::from_slice(data).expect("a split case as JSON");
             split(&case)
@@ -634,5 +638,66 @@ fn check_cache_file(path: &Path) {
                 "a vector just stored comes back different"
             );
         }
+    }
+}
+
+/// Checks that hold for any extracted document: headings and pages lie inside the text on
+/// character boundaries, in order, and each heading's range holds its title.
+fn extracted_is_consistent(x: &kerf::extract::Extracted) {
+    let t = &x.text;
+    let mut last = 0;
+    for h in &x.headings {
+        assert!(
+            h.bytes.start <= h.bytes.end && h.bytes.end <= t.len(),
+            "{h:?}"
+        );
+        assert!(t.is_char_boundary(h.bytes.start) && t.is_char_boundary(h.bytes.end));
+        assert!(h.bytes.start >= last, "headings in document order");
+        last = h.bytes.start;
+        assert!(h.level >= 1, "levels count from 1");
+    }
+    let mut end = 0;
+    for p in &x.pages {
+        assert!(
+            p.start >= end && p.start <= p.end && p.end <= t.len(),
+            "{p:?}"
+        );
+        assert!(t.is_char_boundary(p.start) && t.is_char_boundary(p.end));
+        end = p.end;
+    }
+}
+
+/// HTML: any bytes give text (or, nested past the limit, a refusal); blocks never hold a blank
+/// line, the text has no whitespace at its ends, and each heading's range spells its title.
+pub fn html(data: &[u8]) {
+    use kerf::extract::html;
+    match html::extract(data, "fuzz.html", html::HtmlOptions::default()) {
+        Err(e) => assert!(
+            html::nesting_estimate(data) > html::MAX_NESTING,
+            "refused below the nesting limit: {e}"
+        ),
+        Ok(x) => {
+            extracted_is_consistent(&x);
+            assert!(!x.text.contains("\n\n\n"), "a blank line inside a block");
+            assert_eq!(
+                x.text
+                    .trim_matches(|c: char| c.is_whitespace() && c != '\u{a0}'),
+                x.text
+            );
+            for h in &x.headings {
+                let spelled: Vec<&str> = x.text[h.bytes.clone()].split_whitespace().collect();
+                assert_eq!(spelled.join(" "), h.title);
+            }
+        }
+    }
+}
+
+/// PDF: any bytes give text or one of the promised errors, never a panic (a panic inside the
+/// PDF reader is caught and reported as a damaged file).
+pub fn pdf(data: &[u8]) {
+    if let Ok(x) = kerf::extract::pdf::extract(data, "fuzz.pdf") {
+        extracted_is_consistent(&x);
+        assert!(!x.text.trim().is_empty(), "text, or NoText");
+        assert_eq!(x.pages.len(), x.report.pages);
     }
 }

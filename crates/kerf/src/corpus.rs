@@ -223,7 +223,7 @@ enum Source {
 fn is_document_file(path: &Path) -> bool {
     matches!(
         Format::of_path(path),
-        Some(Format::Text | Format::Markdown | Format::Html)
+        Some(Format::Text | Format::Markdown | Format::Html | Format::Pdf)
     )
 }
 
@@ -235,7 +235,7 @@ fn is_jsonl(path: &Path) -> bool {
 }
 
 /// Find the sources behind the given paths (`-` is standard input). Folders are walked in
-/// sorted order for .txt, .md, .html and .jsonl files.
+/// sorted order for .txt, .md, .html, .pdf and .jsonl files.
 fn discover(paths: &[PathBuf], notices: &mut Vec<Notice>) -> Result<Vec<Source>, CorpusError> {
     let mut out = Vec::new();
     for p in paths {
@@ -259,7 +259,7 @@ fn discover(paths: &[PathBuf], notices: &mut Vec<Notice>) -> Result<Vec<Source>,
                 } else if !rel.starts_with('.') && !rel.contains("/.") && ext != "toml" {
                     notices.push(Notice {
                         origin: f.display().to_string(),
-                        message: "skipped: not a .txt, .md, .html or .jsonl file".into(),
+                        message: "skipped: not a .txt, .md, .html, .pdf or .jsonl file".into(),
                     });
                 }
             }
@@ -421,6 +421,32 @@ impl DocStream {
                 }))
             }
         };
+        if Format::of_path(path) == Some(Format::Pdf) {
+            let origin = path.display().to_string();
+            return match extract::pdf::extract(&bytes, &origin) {
+                Ok(x) => {
+                    let (text, layout) = x.into_parts(Format::Pdf);
+                    Some(Ok(Document {
+                        id,
+                        origin,
+                        text,
+                        layout: Some(Arc::new(layout)),
+                    }))
+                }
+                // A scanned PDF is not an error in the corpus, but it must not pass for an
+                // empty document either: it is left out and named.
+                Err(extract::ExtractError::NoText { pages, .. }) => {
+                    self.notices.push(Notice {
+                        origin,
+                        message: format!(
+                            "skipped: no text layer on any of its {pages} pages (a scanned PDF?); run OCR on it first"
+                        ),
+                    });
+                    None
+                }
+                Err(e) => Some(Err(e.into())),
+            };
+        }
         if looks_binary(&bytes) {
             self.notices.push(Notice {
                 origin: path.display().to_string(),

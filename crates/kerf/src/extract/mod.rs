@@ -7,6 +7,8 @@
 //! segmenter finds the same paragraphs the source had. Byte ranges of chunks cut from an
 //! extracted document refer to this text, which `kerf extract` writes out so they can be
 //! checked.
+pub mod pdf;
+
 use std::ops::Range;
 
 use serde::Serialize;
