@@ -332,40 +332,24 @@ impl Writer {
             self.block.clear();
             return;
         }
+        // A block never holds a blank line (that would split it in two paragraphs): lines with
+        // nothing but spaces go, and the block holds no space at either end.
+        let lines: Vec<&str> = body
+            .split('\n')
+            .map(str::trim_end)
+            .filter(|l| !l.trim().is_empty())
+            .collect();
+        let joined = lines.join("\n");
+        let joined = joined.trim_matches(|c: char| c.is_whitespace() && c != '\u{a0}');
+        if joined.is_empty() {
+            self.block.clear();
+            return;
+        }
         if !self.out.is_empty() {
             self.out.push_str("\n\n");
         }
         let start = self.out.len();
-        // A block never holds a blank line: that would split it in two paragraphs.
-        let mut last_blank = false;
-        for line in body.split('\n') {
-            let blank = line.trim().is_empty();
-            if blank && last_blank {
-                continue;
-            }
-            if self.out.len() > start {
-                self.out.push('\n');
-            }
-            if !blank {
-                self.out.push_str(line.trim_end());
-            }
-            last_blank = blank;
-        }
-        // Drop a lone '\n' left by a blank line kept above.
-        while self.out.ends_with('\n') {
-            self.out.pop();
-        }
-        let mut tidy = String::with_capacity(self.out.len() - start);
-        let mut prev_nl = false;
-        for c in self.out[start..].chars() {
-            if c == '\n' && prev_nl {
-                continue;
-            }
-            prev_nl = c == '\n';
-            tidy.push(c);
-        }
-        self.out.truncate(start);
-        self.out.push_str(&tidy);
+        self.out.push_str(joined);
         if let Some(level) = heading {
             self.headings.push(Heading {
                 level,
