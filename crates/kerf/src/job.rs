@@ -304,10 +304,9 @@ pub fn cut_document(
 ) -> Result<CutRecords, TokensError> {
     let recount = |t: &str| counter.count_content(t).unwrap_or(usize::MAX);
     let an = survey::analyze(&doc.text, counter)?;
-    let breaks = crate::extract::sections::break_starts(
-        &crate::extract::sections::of_document(doc, &an.segments.paragraphs),
-        plan.cut.heading_breaks,
-    );
+    // The headings serve both the heading breaks and the records' section paths: found once.
+    let headings = crate::extract::sections::of_document(doc, &an.segments.paragraphs);
+    let breaks = crate::extract::sections::break_starts(&headings, plan.cut.heading_breaks);
     let chunks = split::cut_at_headings(
         &doc.text,
         &an.tokens,
@@ -320,7 +319,7 @@ pub fn cut_document(
         .iter()
         .map(|c| c.content_tokens.saturating_sub(c.overlap_tokens))
         .collect();
-    let records = ChunkRecord::of_document(doc, &an.segments.paragraphs, &chunks, plan);
+    let records = ChunkRecord::of_document(doc, &headings, &chunks, plan);
     Ok((records, new_tokens))
 }
 

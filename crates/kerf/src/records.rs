@@ -3,9 +3,9 @@ use serde::{Deserialize, Serialize};
 
 use crate::corpus::Document;
 use crate::extract::sections::{self, SectionIndex};
-use crate::extract::Format;
+use crate::extract::{Format, Heading};
 use crate::plan::ResolvedPlan;
-use crate::segment::{LineIndex, Paragraph};
+use crate::segment::LineIndex;
 use crate::split::Chunk;
 
 /// One chunk as written to JSONL.
@@ -50,10 +50,8 @@ pub struct DocIndex<'d> {
 }
 
 impl<'d> DocIndex<'d> {
-    /// Index a document; `paragraphs` are its segmenter paragraphs (they give Markdown and
-    /// plain-text headings; an extracted document brings its own).
-    pub fn new(doc: &'d Document, paragraphs: &[Paragraph]) -> Self {
-        let headings = sections::of_document(doc, paragraphs);
+    /// Index a document with its headings (see `sections::of_document`).
+    pub fn new(doc: &'d Document, headings: &[Heading]) -> Self {
         let (pages, extracted) = match &doc.layout {
             Some(l) => (
                 l.pages.as_slice(),
@@ -63,7 +61,7 @@ impl<'d> DocIndex<'d> {
         };
         Self {
             lines: LineIndex::new(&doc.text),
-            sections: SectionIndex::new(&headings),
+            sections: SectionIndex::new(headings),
             pages,
             extracted,
         }
@@ -71,15 +69,15 @@ impl<'d> DocIndex<'d> {
 }
 
 impl ChunkRecord {
-    /// The records of a document's chunks (its lines and sections indexed once);
-    /// `paragraphs` are the document's segmenter paragraphs.
+    /// The records of a document's chunks (its lines and sections indexed once); `headings`
+    /// are the document's (see `sections::of_document`).
     pub fn of_document(
         doc: &Document,
-        paragraphs: &[Paragraph],
+        headings: &[Heading],
         chunks: &[Chunk],
         plan: &ResolvedPlan,
     ) -> Vec<Self> {
-        let index = DocIndex::new(doc, paragraphs);
+        let index = DocIndex::new(doc, headings);
         chunks
             .iter()
             .map(|c| Self::new(doc, c, plan, &index))

@@ -53,10 +53,14 @@ pub fn cut_corpus(corpus: &Corpus, plan: &ResolvedPlan, counter: &TokenCounter) 
         .par_iter()
         .zip(&corpus.analyses)
         .map(|(d, a)| {
-            let breaks = crate::extract::sections::break_starts(
-                &crate::extract::sections::of_document(d, &a.segments.paragraphs),
-                plan.cut.heading_breaks,
-            );
+            // Headings are looked for only when the plan breaks at them.
+            let breaks = match plan.cut.heading_breaks {
+                0 => Vec::new(),
+                level => crate::extract::sections::break_starts(
+                    &crate::extract::sections::of_document(d, &a.segments.paragraphs),
+                    level,
+                ),
+            };
             split::cut_at_headings(
                 &d.text,
                 &a.tokens,
