@@ -991,14 +991,14 @@ impl App {
     }
 
     fn rescore(&mut self) {
-        let probes = self.probe_count();
+        let set = self.probes.as_deref();
         let judged = &self.judged;
         let score = |st: &mut PlanState, corpus: &Corpus, refs: &[Reference], vectors| {
-            if st.probed.is_none() && probes > 0 {
+            if st.probed.is_none() && set.is_some() {
                 st.probed = judged.get(&judge_key(&st.plan)).cloned();
             }
             if st.scored.is_none() {
-                st.scored = score_state(st, corpus, refs, probes, vectors);
+                st.scored = score_state(st, corpus, refs, set, vectors);
             }
         };
         score(&mut self.current, &self.corpus, &self.refs, &self.vectors);

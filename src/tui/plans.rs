@@ -7,7 +7,7 @@ use std::hash::{Hash, Hasher};
 
 use kerf::compare::engine::{self, Corpus, DocScore};
 use kerf::compare::metrics::Summary;
-use kerf::compare::probes::{Depth, ProbeEval};
+use kerf::compare::probes::{Depth, ProbeEval, ProbeSet};
 use kerf::compare::refs::Reference;
 use kerf::plan::ResolvedPlan;
 use kerf::profile::Encoding;
@@ -179,17 +179,18 @@ pub fn ref_vectors<'v>(
 }
 
 /// Score a plan when every vector it needs is in memory and, with probes, the worker's verdict
-/// is in. `refs` are the references the user gave followed by the probes' (`probes` of them).
+/// is in. `refs` are the references the user gave followed by one per probe of `set`.
 pub fn score_state(
     st: &PlanState,
     corpus: &Corpus,
     refs: &[Reference],
-    probes: usize,
+    set: Option<&ProbeSet>,
     vectors: &HashMap<VecId, Vec<f32>>,
 ) -> Option<Scored> {
     if refs.is_empty() {
         return None;
     }
+    let probes = set.map_or(0, |s| s.probes.len());
     let given = refs.len() - probes;
     let chunk_vecs = chunk_vectors(st, vectors)?;
     let mut ranking = Vec::with_capacity(refs.len());
@@ -211,28 +212,23 @@ pub fn score_state(
         summary = Some(engine::summarize(corpus, &refs[..given], &ranking));
     }
     let mut figures = None;
-    if probes > 0 {
+    if let Some(set) = set.filter(|_| probes > 0) {
         let eval = st.probed.as_ref()?;
         let probe_vecs = ref_vectors(st, given..refs.len(), vectors)?;
-        for ((scores, own), (q, r)) in eval
+        for ((scores, own), (q, p)) in eval
             .scores
             .iter()
             .zip(&eval.own_chunk_cos)
-            .zip(probe_vecs.iter().zip(&refs[given..]))
+            .zip(probe_vecs.iter().zip(&set.probes))
         {
             ranking.push(scores.clone());
             // The probe's own document shows its chunks with the sentence taken out.
-            let own_doc = r
-                .expect
-                .keys()
-                .next()
-                .and_then(|id| corpus.docs.iter().position(|d| &d.id == id));
             chunk_cos.push(
                 chunk_vecs
                     .iter()
                     .enumerate()
                     .map(|(d, vs)| {
-                        if Some(d) == own_doc {
+                        if d == p.doc {
                             own.clone()
                         } else {
                             vs.iter().map(|v| kerf::pool::cosine(q, v)).collect()
