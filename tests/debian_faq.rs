@@ -35,14 +35,7 @@ fn debian_faq_retrieval() {
     let (docs, refs) = documents_and_questions(&chapters, &questions);
     let (info, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
     let corpus = Corpus::new(docs, &counter).unwrap();
-    let embedder = BertEmbedder::load(
-        &info.dir,
-        &EmbedOptions {
-            max_input_tokens: 512,
-            ..Default::default()
-        },
-    )
-    .unwrap();
+    let embedder = common::faq::encoder(&info);
     let ref_vectors = engine::embed_refs(&embedder, None, &refs).unwrap();
     let mk = |window: usize, boundary: Boundary, overlap: usize, chunks: ChunkPooling| {
         let mut p = Profile::default();
@@ -197,14 +190,7 @@ fn self_retrieval_against_the_faq_questions() {
         let n = set.probes.iter().filter(|p| p.depth == b).count();
         assert!(n >= 20, "{n} probes in band {b:?}");
     }
-    let embedder = BertEmbedder::load(
-        &info.dir,
-        &EmbedOptions {
-            max_input_tokens: 512,
-            ..Default::default()
-        },
-    )
-    .unwrap();
+    let embedder = common::faq::encoder(&info);
     let ref_vectors = engine::embed_refs(&embedder, None, &refs).unwrap();
     let probe_vectors =
         engine::embed_refs(&embedder, None, &probes::references(&corpus, &set, "")).unwrap();

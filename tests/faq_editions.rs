@@ -7,7 +7,6 @@ mod common;
 
 use kerf::compare::engine::{self, Corpus};
 use kerf::corpus::Document;
-use kerf::embed::{BertEmbedder, EmbedOptions};
 use kerf::extract::html::{self, HtmlOptions};
 use kerf::extract::Extracted;
 use kerf::plan;
@@ -84,14 +83,7 @@ fn html_and_pdf_editions_retrieve_like_the_plain_text_edition() {
     assert_eq!(html_docs.len(), 16);
     let pdf_docs = pdf_chapters();
     let (info, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
-    let embedder = BertEmbedder::load(
-        &info.dir,
-        &EmbedOptions {
-            max_input_tokens: 512,
-            ..Default::default()
-        },
-    )
-    .unwrap();
+    let embedder = common::faq::encoder(&info);
     let ref_vectors = engine::embed_refs(&embedder, None, &refs).unwrap();
     let mut p = Profile::default();
     p.cut.window = 128;

@@ -87,6 +87,15 @@ impl Drop for Session {
     }
 }
 
+/// Fail (never skip) when tmux is missing.
+fn require_tmux() {
+    let tmux = Command::new("tmux").arg("-V").output();
+    assert!(
+        tmux.as_ref().is_ok_and(|o| o.status.success()),
+        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
+    );
+}
+
 fn header(screen: &str) -> String {
     screen.lines().next().unwrap_or("").to_string()
 }
@@ -97,11 +106,7 @@ fn kerf_in(dir: &Path, args: &[&str]) -> std::process::Output {
 
 #[test]
 fn explore_in_tmux_changes_plan_and_saves_a_profile() {
-    let tmux = Command::new("tmux").arg("-V").output();
-    assert!(
-        tmux.as_ref().is_ok_and(|o| o.status.success()),
-        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
-    );
+    require_tmux();
     common::model_dir();
     let dir = tempfile::tempdir().unwrap();
     let repo = common::repo();
@@ -209,11 +214,7 @@ fn explore_in_tmux_changes_plan_and_saves_a_profile() {
 /// late-chunking context, which the worker runs and the saved profile keeps.
 #[test]
 fn explore_in_tmux_judges_by_probes_and_runs_late_chunking() {
-    let tmux = Command::new("tmux").arg("-V").output();
-    assert!(
-        tmux.as_ref().is_ok_and(|o| o.status.success()),
-        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
-    );
+    require_tmux();
     common::model_dir();
     let dir = tempfile::tempdir().unwrap();
     let demo = common::repo().join("demo-texts");
@@ -255,11 +256,7 @@ fn explore_in_tmux_judges_by_probes_and_runs_late_chunking() {
 
 #[test]
 fn a_panic_restores_the_terminal() {
-    let tmux = Command::new("tmux").arg("-V").output();
-    assert!(
-        tmux.as_ref().is_ok_and(|o| o.status.success()),
-        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
-    );
+    require_tmux();
     common::model_dir();
     let dir = tempfile::tempdir().unwrap();
     let demo = common::repo().join("demo-texts");
@@ -299,11 +296,7 @@ fn a_panic_restores_the_terminal() {
 /// says what stopped and exits 130.
 #[test]
 fn a_signal_restores_the_terminal() {
-    let tmux = Command::new("tmux").arg("-V").output();
-    assert!(
-        tmux.as_ref().is_ok_and(|o| o.status.success()),
-        "tmux is required for this test and was not found (install it, e.g. apt-get install tmux; .ci/run does)"
-    );
+    require_tmux();
     common::model_dir();
     let demo = common::repo().join("demo-texts");
     for sig in ["TERM", "INT", "HUP"] {

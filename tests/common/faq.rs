@@ -86,3 +86,15 @@ pub fn documents_and_questions(
         .collect();
     (docs, refs)
 }
+
+/// The model's encoder as the FAQ checks run it: f32, inputs of up to 512 tokens.
+pub fn encoder(info: &kerf::model::ModelInfo) -> kerf::embed::BertEmbedder {
+    kerf::embed::BertEmbedder::load(
+        &info.dir,
+        &kerf::embed::EmbedOptions {
+            max_input_tokens: 512,
+            ..Default::default()
+        },
+    )
+    .unwrap()
+}
