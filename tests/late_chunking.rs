@@ -30,7 +30,6 @@ const FULL: LateOptions = LateOptions {
 
 fn late_vectors(
     e: &dyn Embedder,
-    prefix: &str,
     docs: &[LateDocument<'_>],
     options: &LateOptions,
     cache: Option<&kerf::cache::VectorCache>,
@@ -38,7 +37,6 @@ fn late_vectors(
     late::embed_documents(
         e,
         cache,
-        prefix,
         docs,
         options,
         8192,
@@ -67,12 +65,16 @@ fn pooled_spans_match_sentence_transformers_token_embeddings() {
                 .collect()
         })
         .collect();
-    let docs = late::documents(items.iter().map(|t| t["text"].as_str().unwrap()), &ranges);
+    let docs = late::documents(
+        items.iter().map(|t| t["text"].as_str().unwrap()),
+        &ranges,
+        &[],
+    );
     let chunks: usize = ranges.iter().map(Vec::len).sum();
     assert!(chunks >= 30);
     for engine in [Engine::Packed, Engine::Candle] {
         let e = encoder(engine);
-        let (got, report) = late_vectors(&e, "", &docs, &FULL, None);
+        let (got, report) = late_vectors(&e, &docs, &FULL, None);
         assert_eq!(report.embedded, chunks);
         let mut worst = 1.0f32;
         for (t, vs) in items.iter().zip(&got) {
@@ -110,8 +112,9 @@ fn a_chunk_that_is_the_whole_pass_equals_ordinary_pooling() {
             .iter()
             .map(|t| std::iter::once(0..t.len()).collect())
             .collect();
-        let docs = late::documents(texts.iter().copied(), &ranges);
-        let (late, _) = late_vectors(&e, prefix, &docs, &FULL, None);
+        let prefixes: Vec<Vec<&str>> = ranges.iter().map(|r| vec![prefix; r.len()]).collect();
+        let docs = late::documents(texts.iter().copied(), &ranges, &prefixes);
+        let (late, _) = late_vectors(&e, &docs, &FULL, None);
         let with_prefix: Vec<String> = texts.iter().map(|t| format!("{prefix}{t}")).collect();
         let refs: Vec<&str> = with_prefix.iter().map(String::as_str).collect();
         let alone = e.embed(&refs).unwrap();
@@ -192,12 +195,12 @@ fn each_chunk_span_holds_exactly_the_chunks_own_tokens() {
 fn long_documents_take_several_passes_and_the_cache_serves_them_again() {
     let e = encoder(Engine::Packed);
     let (texts, ranges) = faq_chunks(2);
-    let docs = late::documents(texts.iter().map(String::as_str), &ranges);
+    let docs = late::documents(texts.iter().map(String::as_str), &ranges, &[]);
     let tmp = tempfile::tempdir().unwrap();
     let cache = kerf::cache::VectorCache::open(&tmp.path().join("c.sqlite")).unwrap();
     let chunks: usize = ranges.iter().map(Vec::len).sum();
-    let (first, r1) = late_vectors(&e, "", &docs, &FULL, Some(&cache));
-    let (again, r2) = late_vectors(&e, "", &docs, &FULL, Some(&cache));
+    let (first, r1) = late_vectors(&e, &docs, &FULL, Some(&cache));
+    let (again, r2) = late_vectors(&e, &docs, &FULL, Some(&cache));
     assert_eq!(r1.embedded, chunks, "every chunk pooled once");
     assert_eq!((r2.embedded, r2.cached), (0, chunks));
     assert_eq!(first, again);

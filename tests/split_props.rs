@@ -119,8 +119,8 @@ fn check(text: &str, chunks: &[Chunk], plan: &ResolvedPlan) -> Result<(), TestCa
     let c = counter();
     let an = c.tokenize(text).unwrap();
     let n = an.len();
-    let prefix = &plan.profile.cut.prefix;
     for (i, ch) in chunks.iter().enumerate() {
+        let prefix = plan.prefix_of(ch);
         let piece = &text[ch.byte_range.clone()];
         let input = format!("{prefix}{piece}");
         let re = c.count_input(&input).unwrap();
@@ -250,6 +250,67 @@ proptest! {
                     prop_assert_eq!(c.token_range.start, t, "break at byte {} inside {:?}", b, c);
                 }
             }
+        }
+    }
+}
+
+/// A Markdown document of sections whose headings are drawn from the same hostile pieces.
+fn sectioned_strategy() -> impl Strategy<Value = String> {
+    prop::collection::vec(
+        (
+            1usize..4,
+            prop::collection::vec(prop::sample::select(PIECES), 1..14),
+            text_strategy(),
+        ),
+        1..6,
+    )
+    .prop_map(|sections| {
+        let mut s = String::new();
+        for (level, title, body) in sections {
+            s.push_str(&"#".repeat(level));
+            s.push(' ');
+            s.push_str(&title.join(" "));
+            s.push_str("\n\n");
+            s.push_str(&body);
+            s.push_str("\n\n");
+        }
+        s
+    })
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 96, .. ProptestConfig::default() })]
+
+    /// A prefix template renders per chunk (title and section path) and is shortened to its
+    /// room: every chunk, re-encoded with its own prefix and the specials, still fits the
+    /// window, and no rendered prefix takes more than the room.
+    #[test]
+    fn templated_prefixes_keep_the_fit(
+        text in sectioned_strategy(),
+        boundary in prop::sample::select(vec![Boundary::Token, Boundary::Sentence, Boundary::Paragraph]),
+        window in 20usize..90,
+        limit in 2usize..24,
+        breaks in 0u8..3,
+    ) {
+        let (info, c) = model::inspect(&common::model_dir()).unwrap();
+        let mut p = Profile::default();
+        p.cut.window = window;
+        p.cut.boundary = boundary;
+        p.cut.prefix = "{title} > {section}: ".into();
+        p.cut.prefix_limit = Some(limit);
+        p.cut.heading_breaks = breaks;
+        let plan = plan::resolve(&p, &info, &c, "prop");
+        prop_assume!(plan.is_ok());
+        let plan = plan.unwrap();
+        let doc = kerf::corpus::Document::plain("maintenance-log.md", "prop", text.clone());
+        let (records, _) = kerf::job::cut_document(&plan, counter(), &doc).unwrap();
+        for r in &records {
+            let prefix = r.prefix.as_deref().expect("a templated plan gives every record a prefix");
+            let pt = if prefix.is_empty() { 0 } else { counter().count_content(prefix).unwrap() };
+            prop_assert!(pt <= limit, "prefix {:?} takes {} > {}", prefix, pt, limit);
+            let re = counter().count_input(&format!("{prefix}{}", r.text)).unwrap();
+            prop_assert!(re <= window, "chunk {} with prefix {:?} re-encodes to {} > {}", r.chunk, prefix, re, window);
+            prop_assert!(r.tokens <= window);
         }
     }
 }

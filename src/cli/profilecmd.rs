@@ -45,9 +45,12 @@ pub struct NewArgs {
     /// Minimum new tokens of a last chunk.
     #[arg(long, default_value_t = 0)]
     pub min_chunk: usize,
-    /// Prefix put before every chunk.
+    /// Prefix put before every chunk; it may name {title} and {section}.
     #[arg(long, default_value = "")]
     pub prefix: String,
+    /// Tokens kept for a prefix that names {title} or {section} (default 32).
+    #[arg(long)]
+    pub prefix_limit: Option<usize>,
     /// Headings of this level and above (1 = outermost) start a new chunk; 0: none do.
     #[arg(long, default_value_t = 0)]
     pub heading_breaks: u8,
@@ -119,6 +122,13 @@ pub fn run(c: ProfileCmd) -> Result<()> {
                 r.prefix_tokens,
                 r.budget()
             )?;
+            if r.templated() {
+                writeln!(
+                    out,
+                    "# each chunk's prefix names its document or section; it is shortened to fit {} tokens (outer headings first)",
+                    r.prefix_tokens
+                )?;
+            }
             if p.cut.heading_breaks > 0 {
                 writeln!(
                     out,
@@ -144,6 +154,7 @@ pub fn run(c: ProfileCmd) -> Result<()> {
                     overlap: a.overlap,
                     min_chunk: a.min_chunk,
                     prefix: a.prefix,
+                    prefix_limit: a.prefix_limit,
                     heading_breaks: a.heading_breaks,
                 },
                 pool: kerf::profile::PoolSection {

@@ -203,6 +203,7 @@ pub fn baseline_profile(info: &ModelInfo, model_folder: Option<PathBuf>) -> Prof
             overlap: 0,
             min_chunk: 0,
             prefix: String::new(),
+            prefix_limit: None,
             heading_breaks: 0,
         },
         pool: kerf::profile::PoolSection {
@@ -781,6 +782,7 @@ impl App {
             let input = match st.plan.profile.pool.late() {
                 None => {
                     let mut texts = Vec::new();
+                    let mut prefixes = Vec::new();
                     let mut tokens = Vec::new();
                     for (d, keys) in st.keys.iter().enumerate() {
                         for (c, k) in keys.iter().enumerate() {
@@ -790,12 +792,17 @@ impl App {
                                 texts.push(
                                     self.corpus.docs[d].text[chunk.byte_range.clone()].to_string(),
                                 );
-                                tokens.push(st.plan.input_tokens(chunk.content_tokens));
+                                prefixes.push(st.plan.prefix_of(chunk).to_string());
+                                tokens.push(st.plan.chunk_input_tokens(chunk));
                                 ids.push(id);
                             }
                         }
                     }
-                    Input::Texts { texts, tokens }
+                    Input::Texts {
+                        texts,
+                        prefixes,
+                        tokens,
+                    }
                 }
                 Some(options) => {
                     // A late vector comes from passes over the whole document: a document
@@ -811,6 +818,10 @@ impl App {
                             docs.push((
                                 d,
                                 st.chunks[d].iter().map(|c| c.byte_range.clone()).collect(),
+                                st.chunks[d]
+                                    .iter()
+                                    .map(|c| st.plan.prefix_of(c).to_string())
+                                    .collect(),
                             ));
                         }
                     }
@@ -826,7 +837,6 @@ impl App {
                     id: 0,
                     generation: Some(self.generation),
                     encoding,
-                    prefix: st.plan.profile.cut.prefix.clone(),
                     input,
                 };
                 jobs.push((job, ids));
@@ -862,8 +872,11 @@ impl App {
                     id: 0,
                     generation: None,
                     encoding,
-                    prefix,
-                    input: Input::Texts { texts, tokens },
+                    input: Input::Texts {
+                        prefixes: vec![prefix; texts.len()],
+                        texts,
+                        tokens,
+                    },
                 };
                 jobs.insert(0, (job, ids));
             }

@@ -212,6 +212,7 @@ mod tests {
             content_tokens: 1,
             overlap_tokens: 0,
             sentence_range: 0..1,
+            prefix: None,
         };
         let chunks = [mk(0, 0..16), mk(1, 11..22)];
         let l = build_layout(text, &chunks, &[], 12);

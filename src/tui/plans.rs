@@ -110,7 +110,8 @@ pub fn cut_state(corpus: &Corpus, counter: &TokenCounter, plan: ResolvedPlan) ->
     let chunks = engine::cut_corpus(corpus, &plan, counter);
     let prefix = {
         let mut h = std::collections::hash_map::DefaultHasher::new();
-        plan.profile.cut.prefix.hash(&mut h);
+        // A template's rendered prefixes depend on the document (in the key) and its room.
+        (&plan.profile.cut.prefix, plan.profile.cut.prefix_limit).hash(&mut h);
         h.finish()
     };
     let late = plan.profile.pool.late();

@@ -30,8 +30,10 @@ use kerf::split::Chunk;
 pub enum Input {
     /// Texts, each encoded alone.
     Texts {
-        /// The texts (without the prefix).
+        /// The texts (without their prefixes).
         texts: Vec<String>,
+        /// What goes before each text.
+        prefixes: Vec<String>,
         /// Encoder-input tokens of each text (prefix and specials included), for batching.
         tokens: Vec<usize>,
     },
@@ -40,8 +42,8 @@ pub enum Input {
     Late {
         /// The corpus the documents are in.
         corpus: Arc<Corpus>,
-        /// (document index, byte range of each of its chunks).
-        docs: Vec<(usize, Vec<Range<usize>>)>,
+        /// (document index, byte range of each of its chunks, each chunk's prefix).
+        docs: Vec<(usize, Vec<Range<usize>>, Vec<String>)>,
         /// Context and overlap of the passes.
         options: LateOptions,
     },
@@ -52,12 +54,12 @@ impl Input {
     pub fn vectors(&self) -> usize {
         match self {
             Input::Texts { texts, .. } => texts.len(),
-            Input::Late { docs, .. } => docs.iter().map(|(_, c)| c.len()).sum(),
+            Input::Late { docs, .. } => docs.iter().map(|(_, c, _)| c.len()).sum(),
         }
     }
 }
 
-/// Vectors to make under one encoding and prefix.
+/// Vectors to make under one encoding.
 #[derive(Clone)]
 pub struct Job {
     /// Identifier the reports carry.
@@ -66,8 +68,6 @@ pub struct Job {
     pub generation: Option<u64>,
     /// Token pooling and precision (select the encoder).
     pub encoding: Encoding,
-    /// Text put before every input.
-    pub prefix: String,
     /// What to embed.
     pub input: Input,
 }
@@ -350,11 +350,16 @@ fn embed_job(
         job.generation.is_some_and(|g| g < generation)
     };
     match &job.input {
-        Input::Texts { texts, tokens } => {
-            let inputs: Vec<(&str, usize)> = texts
+        Input::Texts {
+            texts,
+            prefixes,
+            tokens,
+        } => {
+            let inputs: Vec<job::Input<'_>> = texts
                 .iter()
-                .map(String::as_str)
+                .zip(prefixes)
                 .zip(tokens.iter().copied().chain(std::iter::repeat(0)))
+                .map(|((t, p), n)| job::Input::new(p, t, n))
                 .collect();
             for slice in inputs.chunks(SLICE) {
                 if stale(poll) {
@@ -363,7 +368,6 @@ fn embed_job(
                 let (v, report) = job::embed_cached(
                     embedder.as_ref(),
                     cache,
-                    &job.prefix,
                     slice,
                     REF_BATCH_TOKENS,
                     &mut |_, _| {},
@@ -386,18 +390,23 @@ fn embed_job(
                 if stale(poll) {
                     return Ok(None);
                 }
+                let prefixes: Vec<Vec<&str>> = slice
+                    .iter()
+                    .map(|(_, _, ps)| ps.iter().map(String::as_str).collect())
+                    .collect();
                 let late_docs: Vec<late::LateDocument<'_>> = slice
                     .iter()
-                    .map(|(d, ranges)| late::LateDocument {
+                    .zip(&prefixes)
+                    .map(|((d, ranges, _), ps)| late::LateDocument {
                         text: &corpus.docs[*d].text,
                         chunks: ranges,
+                        prefixes: ps,
                         hole: None,
                     })
                     .collect();
                 let (v, report) = late::embed_chunks(
                     embedder.as_ref(),
                     cache,
-                    &job.prefix,
                     &late_docs,
                     options,
                     REF_BATCH_TOKENS,
@@ -469,9 +478,9 @@ mod tests {
                 pooling: TokenPooling::Mean,
                 precision: Precision::F32,
             },
-            prefix: String::new(),
             input: Input::Texts {
                 texts: vec!["a b".into(), "c".into()],
+                prefixes: vec![String::new(); 2],
                 tokens: vec![4, 3],
             },
         };

@@ -138,28 +138,40 @@ pub fn batches_by_tokens(
     batches
 }
 
-/// Vectors of `inputs` (text without prefix, encoder-input tokens) through the cache: each
-/// distinct input is looked up; the misses are embedded in length-sorted batches of at most
+/// One text to embed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Input<'a> {
+    /// What goes before the text (part of the cache key).
+    pub prefix: &'a str,
+    /// The text.
+    pub text: &'a str,
+    /// Tokens of the encoder input (specials and prefix included), for batching.
+    pub tokens: usize,
+}
+
+impl<'a> Input<'a> {
+    /// An input.
+    pub fn new(prefix: &'a str, text: &'a str, tokens: usize) -> Self {
+        Self {
+            prefix,
+            text,
+            tokens,
+        }
+    }
+}
+
+/// Vectors of `inputs` through the cache: each distinct input is looked up; the misses are embedded in length-sorted batches of at most
 /// `batch_tokens` tokens, each batch stored in the cache as soon as it is done (so a killed run
 /// keeps its work). `progress` gets the tokens done so far and in all.
 pub fn embed_cached(
     embedder: &dyn Embedder,
     cache: Option<&VectorCache>,
-    prefix: &str,
-    inputs: &[(&str, usize)],
+    inputs: &[Input<'_>],
     batch_tokens: usize,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<(Vec<Vec<f32>>, CacheReport), JobError> {
     let never = AtomicBool::new(false);
-    embed_cached_until(
-        embedder,
-        cache,
-        prefix,
-        inputs,
-        batch_tokens,
-        progress,
-        &never,
-    )
+    embed_cached_until(embedder, cache, inputs, batch_tokens, progress, &never)
 }
 
 /// [`embed_cached`] that returns [`JobError::Stopped`] before the next batch once `stop` is set
@@ -167,8 +179,7 @@ pub fn embed_cached(
 pub fn embed_cached_until(
     embedder: &dyn Embedder,
     cache: Option<&VectorCache>,
-    prefix: &str,
-    inputs: &[(&str, usize)],
+    inputs: &[Input<'_>],
     batch_tokens: usize,
     progress: &mut dyn FnMut(usize, usize),
     stop: &AtomicBool,
@@ -178,8 +189,8 @@ pub fn embed_cached_until(
     let mut distinct: Vec<usize> = Vec::new();
     let mut slot_of_input: Vec<usize> = Vec::with_capacity(inputs.len());
     let mut keys: Vec<[u8; 32]> = Vec::new();
-    for (i, (text, _)) in inputs.iter().enumerate() {
-        let k = text_key(prefix, text);
+    for (i, input) in inputs.iter().enumerate() {
+        let k = text_key(input.prefix, input.text);
         let slot = *first.entry(k).or_insert_with(|| {
             distinct.push(i);
             keys.push(k);
@@ -191,14 +202,14 @@ pub fn embed_cached_until(
         Some(c) => c.get_many(&fingerprint, &keys)?,
         None => vec![None; distinct.len()],
     };
-    let tokens_total: usize = distinct.iter().map(|&i| inputs[i].1).sum();
+    let tokens_total: usize = distinct.iter().map(|&i| inputs[i].tokens).sum();
     let misses: Vec<(usize, usize)> = (0..distinct.len())
         .filter(|&s| vectors[s].is_none())
-        .map(|s| (s, inputs[distinct[s]].1))
+        .map(|s| (s, inputs[distinct[s]].tokens))
         .collect();
     let mut report = CacheReport {
         inputs: inputs.len(),
-        input_tokens: inputs.iter().map(|i| i.1).sum(),
+        input_tokens: inputs.iter().map(|i| i.tokens).sum(),
         distinct: distinct.len(),
         cached: distinct.len() - misses.len(),
         ..Default::default()
@@ -211,7 +222,10 @@ pub fn embed_cached_until(
         }
         let texts: Vec<String> = batch
             .iter()
-            .map(|&s| format!("{prefix}{}", inputs[distinct[s]].0))
+            .map(|&s| {
+                let i = &inputs[distinct[s]];
+                format!("{}{}", i.prefix, i.text)
+            })
             .collect();
         let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
         let t = Instant::now();
@@ -231,7 +245,7 @@ pub fn embed_cached_until(
                 .collect();
             c.put_many(&fingerprint, &items)?;
         }
-        let batch_tokens_done: usize = batch.iter().map(|&s| inputs[distinct[s]].1).sum();
+        let batch_tokens_done: usize = batch.iter().map(|&s| inputs[distinct[s]].tokens).sum();
         report.embedded += batch.len();
         report.embedded_tokens += batch_tokens_done;
         for (&s, v) in batch.iter().zip(out) {
@@ -307,7 +321,7 @@ pub fn cut_document(
     // The headings serve both the heading breaks and the records' section paths: found once.
     let headings = crate::extract::sections::of_document(doc, &an.segments.paragraphs);
     let breaks = crate::extract::sections::break_starts(&headings, plan.cut.heading_breaks);
-    let chunks = split::cut_at_headings(
+    let mut chunks = split::cut_at_headings(
         &doc.text,
         &an.tokens,
         &an.segments,
@@ -315,12 +329,18 @@ pub fn cut_document(
         &recount,
         &breaks,
     );
+    crate::prefix::attach(plan, doc, &headings, &mut chunks, &recount);
     let new_tokens = chunks
         .iter()
         .map(|c| c.content_tokens.saturating_sub(c.overlap_tokens))
         .collect();
     let records = ChunkRecord::of_document(doc, &headings, &chunks, plan);
     Ok((records, new_tokens))
+}
+
+/// What goes before a record's text: its own prefix, else the plan's fixed one.
+fn record_prefix<'a>(plan: &'a ResolvedPlan, r: &'a ChunkRecord) -> &'a str {
+    r.prefix.as_deref().unwrap_or(plan.fixed_prefix.as_str())
 }
 
 /// A cut document waiting in a block.
@@ -459,17 +479,21 @@ impl EmbedJob<'_> {
                 ..base
             })
         };
-        let prefix = &self.plan.profile.cut.prefix;
-        let (vectors, cache_report) = match self.plan.profile.pool.late() {
+        let plan = self.plan;
+        let prefix_of = |r| record_prefix(plan, r);
+        let (vectors, cache_report) = match plan.profile.pool.late() {
             None => {
-                let inputs: Vec<(&str, usize)> = block
+                let inputs: Vec<Input<'_>> = block
                     .iter()
-                    .flat_map(|d| d.records.iter().map(|r| (r.text.as_str(), r.tokens)))
+                    .flat_map(|d| {
+                        d.records
+                            .iter()
+                            .map(|r| Input::new(prefix_of(r), &r.text, r.tokens))
+                    })
                     .collect();
                 embed_cached_until(
                     self.embedder,
                     self.cache,
-                    prefix,
                     &inputs,
                     self.settings.batch_tokens,
                     &mut tell,
@@ -481,11 +505,18 @@ impl EmbedJob<'_> {
                     .iter()
                     .map(|d| d.records.iter().map(|r| r.bytes[0]..r.bytes[1]).collect())
                     .collect();
-                let docs = crate::late::documents(block.iter().map(|d| d.text.as_str()), &ranges);
+                let prefixes: Vec<Vec<&str>> = block
+                    .iter()
+                    .map(|d| d.records.iter().map(prefix_of).collect())
+                    .collect();
+                let docs = crate::late::documents(
+                    block.iter().map(|d| d.text.as_str()),
+                    &ranges,
+                    &prefixes,
+                );
                 let (vectors, cache_report) = crate::late::embed_chunks(
                     self.embedder,
                     self.cache,
-                    prefix,
                     &docs,
                     &late,
                     self.settings.batch_tokens,
@@ -587,11 +618,11 @@ mod tests {
         let c = VectorCache::open(&dir.path().join("v.sqlite")).unwrap();
         let e = HashEmbedder { dim: 8 };
         let none = &mut |_: usize, _: usize| {};
+        let i = |p, t, n| Input::new(p, t, n);
         let (v1, r1) = embed_cached(
             &e,
             Some(&c),
-            "",
-            &[("a b", 4), ("c d", 4), ("a b", 4)],
+            &[i("", "a b", 4), i("", "c d", 4), i("", "a b", 4)],
             100,
             none,
         )
@@ -603,13 +634,24 @@ mod tests {
         assert_eq!(v1[0], v1[2]);
         assert_eq!(v1[0], e.embed(&["a b"]).unwrap()[0]);
         let (v2, r2) =
-            embed_cached(&e, Some(&c), "", &[("c d", 4), ("a b", 4)], 100, none).unwrap();
+            embed_cached(&e, Some(&c), &[i("", "c d", 4), i("", "a b", 4)], 100, none).unwrap();
         assert_eq!((r2.cached, r2.embedded), (2, 0));
         assert_eq!(v2[1], v1[0]);
         // A prefix is part of the key, and goes in front of the text the encoder sees.
-        let (v3, r3) = embed_cached(&e, Some(&c), "query: ", &[("a b", 6)], 100, none).unwrap();
+        let (v3, r3) = embed_cached(&e, Some(&c), &[i("query: ", "a b", 6)], 100, none).unwrap();
         assert_eq!(r3.embedded, 1);
         assert_eq!(v3[0], e.embed(&["query: a b"]).unwrap()[0]);
         assert_eq!(c.count("hash-8").unwrap(), 3);
+        // Inputs of one call may each have their own prefix.
+        let (v4, r4) = embed_cached(
+            &e,
+            Some(&c),
+            &[i("query: ", "a b", 6), i("Seals: ", "a b", 6)],
+            100,
+            none,
+        )
+        .unwrap();
+        assert_eq!((r4.cached, r4.embedded), (1, 1));
+        assert_eq!(v4[1], e.embed(&["Seals: a b"]).unwrap()[0]);
     }
 }

@@ -11,7 +11,8 @@
 //!   chunking"): each new pass starts `overlap` tokens before its first chunk, so that chunk has
 //!   left context too, and the last pass is pulled back to end at the document's end.
 //! - The first chunk of a pass takes the start special token (and the prefix, if the plan has
-//!   one) when the pass starts with it, and the last chunk takes the end special token when the
+//!   one: under a prefix template, the pass takes its first chunk's prefix, and every pass of a
+//!   document keeps room for the longest of its chunks' prefixes) when the pass starts with it, and the last chunk takes the end special token when the
 //!   pass ends with it. So a chunk that is a whole pass pools exactly the rows ordinary chunking
 //!   pools. Tokens of the overlap and after the last chunk are context only.
 //! - A chunk's tokens are the document tokens whose first byte lies in its byte range (a chunk
@@ -27,7 +28,7 @@ use sha2::{Digest, Sha256};
 
 use crate::cache::VectorCache;
 use crate::embed::{EmbedError, Embedder, SpanPass, TokenIds};
-use crate::job::{CacheReport, JobError};
+use crate::job::{CacheReport, Input, JobError};
 
 /// The late-chunking dimension of a plan.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
@@ -154,18 +155,20 @@ fn span_key(ids: &[u32], span: &Range<usize>) -> [u8; 32] {
 
 /// The passes of one document, with `hole` (a byte range, for self-retrieval probes) taken
 /// out of the tokens when given: then only passes whose tokens meet the hole are returned,
-/// and a chunk left without tokens gets no span.
+/// and a chunk left without tokens gets no span. `prefix_ids` holds each chunk's prefix ids
+/// (empty: no prefix); a pass takes its first chunk's.
 pub fn plan_document(
     tokens: &TokenIds,
-    prefix_ids: &[u32],
+    prefix_ids: &[&[u32]],
     chunks: &[Range<usize>],
     options: &LateOptions,
     specials: (usize, usize),
     hole: Option<&Range<usize>>,
 ) -> Vec<PlannedPass> {
+    let longest_prefix = prefix_ids.iter().map(|p| p.len()).max().unwrap_or(0);
     let capacity = options
         .context
-        .saturating_sub(specials.0 + specials.1 + prefix_ids.len())
+        .saturating_sub(specials.0 + specials.1 + longest_prefix)
         .max(1);
     let spans = chunk_spans(&tokens.offsets, chunks, capacity);
     let hole_tokens = hole.map(|h| {
@@ -182,7 +185,8 @@ pub fn plan_document(
             }
             Some(_) => continue,
         };
-        let mut ids = prefix_ids.to_vec();
+        let prefix: &[u32] = prefix_ids.get(pass.chunks.start).copied().unwrap_or(&[]);
+        let mut ids = prefix.to_vec();
         ids.extend(
             (pass.tokens.clone())
                 .filter(|t| !cut.contains(t))
@@ -210,7 +214,7 @@ pub fn plan_document(
             if !kept.is_empty() {
                 input
                     .spans
-                    .push(rows_of(&local, &kept, specials, prefix_ids.len()));
+                    .push(rows_of(&local, &kept, specials, prefix.len()));
                 idx.push(k);
             }
         }
@@ -241,6 +245,8 @@ pub struct LateDocument<'a> {
     pub text: &'a str,
     /// Byte range of each chunk.
     pub chunks: &'a [Range<usize>],
+    /// Each chunk's prefix (empty: no prefix at all).
+    pub prefixes: &'a [&'a str],
     /// A byte range to take out of the text first (a self-retrieval probe's sentence).
     pub hole: Option<&'a Range<usize>>,
 }
@@ -253,17 +259,32 @@ pub fn byte_ranges(chunks: &[Vec<crate::split::Chunk>]) -> Vec<Vec<Range<usize>>
         .collect()
 }
 
-/// The documents of `texts` with their chunks' byte ranges, no hole.
+/// Each chunk's prefix under a plan, per document.
+pub fn prefixes<'a>(
+    plan: &'a crate::plan::ResolvedPlan,
+    chunks: &'a [Vec<crate::split::Chunk>],
+) -> Vec<Vec<&'a str>> {
+    chunks
+        .iter()
+        .map(|cs| cs.iter().map(|c| plan.prefix_of(c)).collect())
+        .collect()
+}
+
+/// The documents of `texts` with their chunks' byte ranges and prefixes (an empty list: no
+/// prefix), no hole.
 pub fn documents<'a>(
     texts: impl IntoIterator<Item = &'a str>,
     ranges: &'a [Vec<Range<usize>>],
+    prefixes: &'a [Vec<&'a str>],
 ) -> Vec<LateDocument<'a>> {
     texts
         .into_iter()
         .zip(ranges)
-        .map(|(text, chunks)| LateDocument {
+        .enumerate()
+        .map(|(i, (text, chunks))| LateDocument {
             text,
             chunks,
+            prefixes: prefixes.get(i).map_or(&[][..], Vec::as_slice),
             hole: None,
         })
         .collect()
@@ -273,7 +294,6 @@ pub fn documents<'a>(
 /// tokenizer, and the embedder's specials.
 fn plan_all(
     embedder: &dyn Embedder,
-    prefix: &str,
     docs: &[LateDocument<'_>],
     options: &LateOptions,
 ) -> Result<Vec<(usize, PlannedPass)>, JobError> {
@@ -284,11 +304,18 @@ fn plan_all(
             ))
         })
     };
-    let prefix_ids = if prefix.is_empty() {
-        Vec::new()
-    } else {
-        token_ids(prefix)?.ids
-    };
+    // Each distinct prefix tokenized once.
+    let mut ids_of: HashMap<&str, Vec<u32>> = HashMap::new();
+    for p in docs.iter().flat_map(|d| d.prefixes.iter().copied()) {
+        if !ids_of.contains_key(p) {
+            let ids = if p.is_empty() {
+                Vec::new()
+            } else {
+                token_ids(p)?.ids
+            };
+            ids_of.insert(p, ids);
+        }
+    }
     let options = LateOptions {
         context: options.context.min(embedder.max_input_tokens()),
         ..*options
@@ -296,6 +323,7 @@ fn plan_all(
     let mut planned = Vec::new();
     for (d, doc) in docs.iter().enumerate() {
         let tokens = token_ids(doc.text)?;
+        let prefix_ids: Vec<&[u32]> = doc.prefixes.iter().map(|p| ids_of[p].as_slice()).collect();
         planned.extend(
             plan_document(
                 &tokens,
@@ -322,14 +350,13 @@ fn plan_all(
 pub fn embed_documents(
     embedder: &dyn Embedder,
     cache: Option<&VectorCache>,
-    prefix: &str,
     docs: &[LateDocument<'_>],
     options: &LateOptions,
     batch_tokens: usize,
     progress: &mut dyn FnMut(usize, usize),
     stop: &AtomicBool,
 ) -> Result<(PartialVectors, CacheReport), JobError> {
-    let planned = plan_all(embedder, prefix, docs, options)?;
+    let planned = plan_all(embedder, docs, options)?;
     let fingerprint = embedder.fingerprint();
     let keys: Vec<[u8; 32]> = planned.iter().flat_map(|(_, p)| p.keys.clone()).collect();
     let mut found: HashMap<[u8; 32], Vec<f32>> = HashMap::new();
@@ -423,29 +450,22 @@ pub fn embed_documents(
 pub fn embed_chunks(
     embedder: &dyn Embedder,
     cache: Option<&VectorCache>,
-    prefix: &str,
     docs: &[LateDocument<'_>],
     options: &LateOptions,
     batch_tokens: usize,
     progress: &mut dyn FnMut(usize, usize),
     stop: &AtomicBool,
 ) -> Result<(crate::pool::ChunkVectors, CacheReport), JobError> {
-    let (vectors, mut report) = embed_documents(
-        embedder,
-        cache,
-        prefix,
-        docs,
-        options,
-        batch_tokens,
-        progress,
-        stop,
-    )?;
-    let mut inputs: Vec<(&str, usize)> = Vec::new();
+    let (vectors, mut report) =
+        embed_documents(embedder, cache, docs, options, batch_tokens, progress, stop)?;
+    let mut inputs: Vec<Input<'_>> = Vec::new();
     for (d, vs) in docs.iter().zip(&vectors) {
-        for (c, v) in d.chunks.iter().zip(vs) {
+        for (k, (c, v)) in d.chunks.iter().zip(vs).enumerate() {
             if v.is_none() {
                 let text = &d.text[c.clone()];
-                inputs.push((text, embedder.count_tokens(&format!("{prefix}{text}"))?));
+                let prefix = d.prefixes.get(k).copied().unwrap_or("");
+                let tokens = embedder.count_tokens(&format!("{prefix}{text}"))?;
+                inputs.push(Input::new(prefix, text, tokens));
             }
         }
     }
@@ -454,7 +474,6 @@ pub fn embed_chunks(
         let (v, r) = crate::job::embed_cached_until(
             embedder,
             cache,
-            prefix,
             &inputs,
             batch_tokens,
             &mut |_, _| {},

@@ -17,6 +17,7 @@ pub mod late;
 pub mod model;
 pub mod plan;
 pub mod pool;
+pub mod prefix;
 pub mod profile;
 pub mod records;
 pub mod segment;

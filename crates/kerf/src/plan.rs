@@ -4,7 +4,9 @@
 //! come out of it before any text goes in. Resolving is where a window larger than the model's
 //! architecture, or an overlap that leaves no room for new text, is refused.
 use crate::model::ModelInfo;
+use crate::prefix::{self, Template};
 use crate::profile::{Boundary, Profile};
+use crate::split::Chunk;
 use crate::tokens::TokenCounter;
 
 /// A resolved cutting plan, in content tokens (specials and prefix already taken off).
@@ -32,8 +34,12 @@ pub struct ResolvedPlan {
     pub window: usize,
     /// Special tokens per input.
     pub specials: usize,
-    /// Tokens the prefix takes.
+    /// Tokens the prefix takes (a template's room: every rendered prefix fits it).
     pub prefix_tokens: usize,
+    /// The prefix, parsed.
+    pub prefix: Template,
+    /// The text before every chunk when the prefix names no field (empty for a template).
+    pub fixed_prefix: String,
     /// What the splitter works with.
     pub cut: CutPlan,
 }
@@ -43,9 +49,29 @@ impl ResolvedPlan {
     pub fn budget(&self) -> usize {
         self.cut.budget_tokens
     }
-    /// Tokens one encoder input of a chunk costs, specials and prefix included.
+    /// Tokens one encoder input of a chunk costs, specials and prefix included (a template's
+    /// whole room: [`ResolvedPlan::chunk_input_tokens`] counts a chunk's own prefix).
     pub fn input_tokens(&self, content_tokens: usize) -> usize {
         content_tokens + self.specials + self.prefix_tokens
+    }
+    /// Whether the prefix names a field, so each chunk carries its own.
+    pub fn templated(&self) -> bool {
+        self.prefix.fixed().is_none()
+    }
+    /// The prefix put before a chunk: its own when the plan's is a template, else the plan's.
+    pub fn prefix_of<'a>(&'a self, chunk: &'a Chunk) -> &'a str {
+        match &chunk.prefix {
+            Some(p) => &p.text,
+            None => &self.fixed_prefix,
+        }
+    }
+    /// Tokens the encoder input of a chunk costs, specials and its own prefix included.
+    pub fn chunk_input_tokens(&self, chunk: &Chunk) -> usize {
+        let prefix = chunk
+            .prefix
+            .as_ref()
+            .map_or(self.prefix_tokens, |p| p.tokens);
+        chunk.content_tokens + self.specials + prefix
     }
 }
 
@@ -89,14 +115,37 @@ pub fn resolve(
             info.dir.display()
         ));
     }
-    let prefix_tokens = if c.prefix.is_empty() {
-        0
-    } else {
-        counter.count_content(&c.prefix).map_err(|e| PlanError {
+    let template = match Template::parse(&c.prefix) {
+        Ok(t) => t,
+        Err(e) => return err(format!("[cut] prefix {:?}: {e}", c.prefix)),
+    };
+    let prefix_tokens = match (template.fixed(), c.prefix_limit) {
+        (Some(fixed), _) if fixed.is_empty() => 0,
+        (Some(fixed), _) => counter.count_content(&fixed).map_err(|e| PlanError {
             origin: origin.into(),
             message: e.to_string(),
-        })?
+        })?,
+        (None, limit) => limit.unwrap_or(prefix::DEFAULT_LIMIT),
     };
+    if template.fixed().is_some() && c.prefix_limit.is_some() {
+        return err(
+            "[cut] prefix_limit applies to a prefix that names {title} or {section}; this prefix names neither (its own tokens count against the window)".into(),
+        );
+    }
+    if template.fixed().is_none() {
+        // The template's own text, every field empty, must fit: shortening cannot go below it.
+        let bare = template.render("", &[]);
+        let bare_tokens = counter.count_content(&bare).map_err(|e| PlanError {
+            origin: origin.into(),
+            message: e.to_string(),
+        })?;
+        if bare_tokens > prefix_tokens {
+            return err(format!(
+                "[cut] prefix {:?}: its own text takes {bare_tokens} tokens, more than the {prefix_tokens} kept for it (raise prefix_limit)",
+                c.prefix
+            ));
+        }
+    }
     let specials = counter.specials_per_input();
     let fixed = specials + prefix_tokens;
     if c.window <= fixed {
@@ -131,6 +180,8 @@ pub fn resolve(
         window: c.window,
         specials,
         prefix_tokens,
+        fixed_prefix: template.fixed().unwrap_or_default(),
+        prefix: template,
         cut: CutPlan {
             boundary: c.boundary,
             budget_tokens: budget,

@@ -207,8 +207,14 @@ pub struct CutSection {
     #[serde(default)]
     pub min_chunk: usize,
     /// Text put before every chunk (some models expect one); its tokens count against the window.
+    /// It may name `{title}` and `{section}` (see `kerf::prefix`).
     #[serde(default, skip_serializing_if = "String::is_empty")]
     pub prefix: String,
+    /// Tokens kept for a prefix that names `{title}` or `{section}` (each chunk's rendered
+    /// prefix is shortened to fit); unset: `prefix::DEFAULT_LIMIT`. A fixed prefix takes its own
+    /// count.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub prefix_limit: Option<usize>,
     /// Headings of this level and above (1 = outermost) start a new chunk: no chunk crosses
     /// one, unless the section before it is shorter than `min_chunk`. 0: headings are text
     /// like any other.
@@ -228,6 +234,7 @@ impl Default for CutSection {
             overlap: 0,
             min_chunk: 0,
             prefix: String::new(),
+            prefix_limit: None,
             heading_breaks: 0,
         }
     }

@@ -31,6 +31,10 @@ pub struct ChunkRecord {
     /// The headings the chunk starts under, outermost first (empty: none).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub section: Vec<String>,
+    /// The prefix put before the chunk, when the plan's names `{title}` or `{section}` (a
+    /// fixed prefix is the profile's, the same for every chunk).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub prefix: Option<String>,
     /// First and last page (PDF).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pages: Option<[usize; 2]>,
@@ -96,11 +100,12 @@ impl ChunkRecord {
                 lines.line_of(b.start),
                 lines.line_of(b.end.saturating_sub(1).max(b.start)),
             ],
-            tokens: plan.input_tokens(chunk.content_tokens),
+            tokens: plan.chunk_input_tokens(chunk),
             overlap: chunk.overlap_tokens,
             sentences: [chunk.sentence_range.start, chunk.sentence_range.end],
             text: doc.text[b.clone()].to_string(),
             section: index.sections.path_at(b.start),
+            prefix: chunk.prefix.as_ref().map(|p| p.text.clone()),
             pages: sections::pages_of(index.pages, b),
             extracted: index.extracted,
         }

@@ -41,6 +41,10 @@ pub struct Chunk {
     pub overlap_tokens: usize,
     /// Sentences (indices into the document's sentence list) the chunk touches.
     pub sentence_range: Range<usize>,
+    /// The chunk's own prefix when the plan's names `{title}` or `{section}` (set after
+    /// cutting, by `prefix::of_chunks`); `None`: the plan's fixed prefix.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub prefix: Option<crate::prefix::ChunkPrefix>,
 }
 
 /// A packable run of tokens.
@@ -373,6 +377,7 @@ pub fn cut_at_headings(
             content_tokens,
             overlap_tokens,
             sentence_range: first..last.max(first),
+            prefix: None,
         });
     }
     chunks

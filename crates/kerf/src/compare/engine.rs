@@ -11,7 +11,7 @@ use serde::Serialize;
 use super::metrics::{self, Summary};
 use super::refs::Reference;
 use crate::corpus::Document;
-use crate::job::{embed_cached, CacheReport, JobError};
+use crate::job::{embed_cached, CacheReport, Input, JobError};
 use crate::plan::ResolvedPlan;
 use crate::pool::{self, ChunkPooling};
 use crate::split::{self, Chunk};
@@ -45,7 +45,8 @@ impl Corpus {
     }
 }
 
-/// Cut every document of a corpus under a plan (in parallel).
+/// Cut every document of a corpus under a plan (in parallel); under a prefix template each
+/// chunk carries its own prefix.
 pub fn cut_corpus(corpus: &Corpus, plan: &ResolvedPlan, counter: &TokenCounter) -> Vec<Vec<Chunk>> {
     let recount = |t: &str| counter.count_content(t).unwrap_or(usize::MAX);
     corpus
@@ -53,35 +54,23 @@ pub fn cut_corpus(corpus: &Corpus, plan: &ResolvedPlan, counter: &TokenCounter) 
         .par_iter()
         .zip(&corpus.analyses)
         .map(|(d, a)| {
-            // Headings are looked for only when the plan breaks at them.
-            let breaks = match plan.cut.heading_breaks {
-                0 => Vec::new(),
-                level => crate::extract::sections::break_starts(
-                    &crate::extract::sections::of_document(d, &a.segments.paragraphs),
-                    level,
-                ),
+            // Headings are looked for only when the plan breaks at them or names them.
+            let headings = if plan.cut.heading_breaks > 0 || plan.templated() {
+                crate::extract::sections::of_document(d, &a.segments.paragraphs)
+            } else {
+                std::borrow::Cow::Borrowed(&[][..])
             };
-            split::cut_at_headings(
+            let breaks = crate::extract::sections::break_starts(&headings, plan.cut.heading_breaks);
+            let mut chunks = split::cut_at_headings(
                 &d.text,
                 &a.tokens,
                 &a.segments,
                 &plan.cut,
                 &recount,
                 &breaks,
-            )
-        })
-        .collect()
-}
-
-/// The encoder input of a chunk: prefix then text.
-pub fn chunk_inputs(corpus: &Corpus, chunks: &[Vec<Chunk>], prefix: &str) -> Vec<String> {
-    corpus
-        .docs
-        .iter()
-        .zip(chunks)
-        .flat_map(|(d, cs)| {
-            cs.iter()
-                .map(move |c| format!("{prefix}{}", &d.text[c.byte_range.clone()]))
+            );
+            crate::prefix::attach(plan, d, &headings, &mut chunks, &recount);
+            chunks
         })
         .collect()
 }
@@ -313,32 +302,15 @@ pub fn embed_refs(
     cache: Option<&crate::cache::VectorCache>,
     refs: &[Reference],
 ) -> Result<Vec<Vec<f32>>, JobError> {
-    let mut out = vec![Vec::new(); refs.len()];
-    let mut prefixes: Vec<&str> = refs.iter().map(|r| r.prefix.as_str()).collect();
-    prefixes.sort();
-    prefixes.dedup();
-    for p in prefixes {
-        let idx: Vec<usize> = (0..refs.len()).filter(|&i| refs[i].prefix == p).collect();
-        let inputs = idx
-            .iter()
-            .map(|&i| {
-                let t = refs[i].text.as_str();
-                Ok((t, embedder.count_tokens(&format!("{p}{t}"))?))
-            })
-            .collect::<Result<Vec<(&str, usize)>, crate::embed::EmbedError>>()?;
-        let (v, _) = embed_cached(
-            embedder,
-            cache,
-            p,
-            &inputs,
-            REF_BATCH_TOKENS,
-            &mut |_, _| {},
-        )?;
-        for (i, v) in idx.into_iter().zip(v) {
-            out[i] = v;
-        }
-    }
-    Ok(out)
+    let inputs = refs
+        .iter()
+        .map(|r| {
+            let tokens = embedder.count_tokens(&format!("{}{}", r.prefix, r.text))?;
+            Ok(Input::new(&r.prefix, &r.text, tokens))
+        })
+        .collect::<Result<Vec<_>, crate::embed::EmbedError>>()?;
+    let (vectors, _) = embed_cached(embedder, cache, &inputs, REF_BATCH_TOKENS, &mut |_, _| {})?;
+    Ok(vectors)
 }
 
 /// Tokens per encoder batch when compare, sweep and explore embed (as `kerf embed`'s default).
@@ -357,14 +329,17 @@ pub fn embed_chunks(
     cache: Option<&crate::cache::VectorCache>,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<(ChunkVectors, CacheReport), JobError> {
-    let prefix = &plan.profile.cut.prefix;
     if let Some(late) = plan.profile.pool.late() {
         let ranges = crate::late::byte_ranges(chunks);
-        let docs = crate::late::documents(corpus.docs.iter().map(|d| d.text.as_str()), &ranges);
+        let prefixes = crate::late::prefixes(plan, chunks);
+        let docs = crate::late::documents(
+            corpus.docs.iter().map(|d| d.text.as_str()),
+            &ranges,
+            &prefixes,
+        );
         return crate::late::embed_chunks(
             embedder,
             cache,
-            prefix,
             &docs,
             &late,
             REF_BATCH_TOKENS,
@@ -372,21 +347,21 @@ pub fn embed_chunks(
             &std::sync::atomic::AtomicBool::new(false),
         );
     }
-    let inputs: Vec<(&str, usize)> = corpus
+    let inputs: Vec<Input<'_>> = corpus
         .docs
         .iter()
         .zip(chunks)
         .flat_map(|(d, cs)| {
             cs.iter().map(move |c| {
-                (
+                Input::new(
+                    plan.prefix_of(c),
                     &d.text[c.byte_range.clone()],
-                    plan.input_tokens(c.content_tokens),
+                    plan.chunk_input_tokens(c),
                 )
             })
         })
         .collect();
-    let (flat, report) =
-        embed_cached(embedder, cache, prefix, &inputs, REF_BATCH_TOKENS, progress)?;
+    let (flat, report) = embed_cached(embedder, cache, &inputs, REF_BATCH_TOKENS, progress)?;
     Ok((unflatten(chunks, flat), report))
 }
 
@@ -493,6 +468,7 @@ mod tests {
                     content_tokens: 10,
                     overlap_tokens: 0,
                     sentence_range: 0..0,
+                    prefix: None,
                 })
                 .collect::<Vec<_>>()
         };

@@ -17,7 +17,7 @@ use super::engine::{self, new_tokens, Corpus, DocScore, REF_BATCH_TOKENS};
 use super::metrics::{self, Summary};
 use super::refs::Reference;
 use crate::embed::Embedder;
-use crate::job::{embed_cached, JobError};
+use crate::job::{embed_cached, Input, JobError};
 use crate::plan::ResolvedPlan;
 use crate::pool;
 use crate::segment::BlockKind;
@@ -325,7 +325,7 @@ fn holed_alone(
     corpus: &Corpus,
     set: &ProbeSet,
     chunks: &[Vec<Chunk>],
-    prefix: &str,
+    plan: &ResolvedPlan,
     embedder: &dyn Embedder,
     cache: Option<&crate::cache::VectorCache>,
 ) -> Result<Holed, JobError> {
@@ -341,21 +341,19 @@ fn holed_alone(
                 .collect()
         })
         .collect();
-    let mut inputs: Vec<(&str, usize)> = Vec::new();
-    for (_, t) in holes.iter().flatten() {
-        if !t.is_empty() {
-            inputs.push((t.as_str(), embedder.count_tokens(&format!("{prefix}{t}"))?));
+    let mut inputs: Vec<Input<'_>> = Vec::new();
+    for (p, hs) in set.probes.iter().zip(&holes) {
+        for (i, t) in hs {
+            if !t.is_empty() {
+                let prefix = plan.prefix_of(&chunks[p.doc][*i]);
+                let tokens = embedder.count_tokens(&format!("{prefix}{t}"))?;
+                inputs.push(Input::new(prefix, t, tokens));
+            }
         }
     }
-    let holed_tokens = inputs.iter().map(|x| x.1).sum();
-    let (vectors, report) = embed_cached(
-        embedder,
-        cache,
-        prefix,
-        &inputs,
-        REF_BATCH_TOKENS,
-        &mut |_, _| {},
-    )?;
+    let holed_tokens = inputs.iter().map(|x| x.tokens).sum();
+    let (vectors, report) =
+        embed_cached(embedder, cache, &inputs, REF_BATCH_TOKENS, &mut |_, _| {})?;
     let mut next = vectors.into_iter();
     let replacements = holes
         .into_iter()
@@ -378,25 +376,26 @@ fn holed_in_context(
     corpus: &Corpus,
     set: &ProbeSet,
     chunks: &[Vec<Chunk>],
-    prefix: &str,
+    plan: &ResolvedPlan,
     late: &crate::late::LateOptions,
     embedder: &dyn Embedder,
     cache: Option<&crate::cache::VectorCache>,
 ) -> Result<Holed, JobError> {
     let ranges = crate::late::byte_ranges(chunks);
+    let prefixes = crate::late::prefixes(plan, chunks);
     let docs: Vec<crate::late::LateDocument<'_>> = set
         .probes
         .iter()
         .map(|p| crate::late::LateDocument {
             text: &corpus.docs[p.doc].text,
             chunks: &ranges[p.doc],
+            prefixes: &prefixes[p.doc],
             hole: Some(&p.bytes),
         })
         .collect();
     let (vectors, report) = crate::late::embed_documents(
         embedder,
         cache,
-        prefix,
         &docs,
         late,
         REF_BATCH_TOKENS,
@@ -466,10 +465,9 @@ pub fn score(
     embedder: &dyn Embedder,
     cache: Option<&crate::cache::VectorCache>,
 ) -> Result<ProbeEval, JobError> {
-    let prefix = plan.profile.cut.prefix.as_str();
     let (replacements, embedded, holed_tokens) = match plan.profile.pool.late() {
-        None => holed_alone(corpus, set, chunks, prefix, embedder, cache)?,
-        Some(late) => holed_in_context(corpus, set, chunks, prefix, &late, embedder, cache)?,
+        None => holed_alone(corpus, set, chunks, plan, embedder, cache)?,
+        Some(late) => holed_in_context(corpus, set, chunks, plan, &late, embedder, cache)?,
     };
     let how = plan.profile.pool.chunks;
     let temperature = plan.profile.pool.temperature;
