@@ -318,3 +318,69 @@ fn broken_jsonl_line_is_refused_or_skipped_never_silently() {
     assert_eq!(ids.len(), 38, "{ids:?}");
     assert!(!ids.contains("d17") && !ids.contains("d30"));
 }
+
+/// A prefix template end to end, on a chapter of the Debian FAQ's HTML edition
+/// (scripts/fetch-testdata): every record carries its own prefix naming the page title and the
+/// section it starts under, and re-encoded with that prefix and the specials it fits the window
+/// and takes exactly the tokens the record reports. A template naming an unknown field, or whose
+/// own text outgrows its room, is refused with the profile named.
+#[test]
+fn cut_with_a_title_and_section_prefix() {
+    let (_, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let page = common::testdata("debian-faq/html/kernel.en.html");
+    std::fs::copy(&page, d.join("kernel.html")).unwrap();
+    let profile = "schema = 1\nname = \"titled\"\n[cut]\nwindow = 96\nboundary = \"sentence\"\nprefix = \"{title} > {section}: \"\nprefix_limit = 24\n";
+    std::fs::write(d.join("p.toml"), profile).unwrap();
+    let shown = ok(&kerf_in(d, &["profile", "show", "p.toml"]));
+    assert!(
+        shown.contains("window 96 = 2 special + 24 prefix + 70 content tokens"),
+        "{shown}"
+    );
+    let recs = records(&ok(&kerf_in(d, &["cut", "-p", "p.toml", "kernel.html"])));
+    assert!(recs.len() > 5);
+    let mut deep = 0;
+    for r in &recs {
+        let prefix = r.prefix.as_deref().expect("every record has its prefix");
+        let re = counter.count_input(&format!("{prefix}{}", r.text)).unwrap();
+        assert!(re <= 96, "#{} re-encodes to {re}", r.chunk);
+        assert_eq!(re, r.tokens, "reported tokens of #{}", r.chunk);
+        assert!(counter.count_content(prefix).unwrap() <= 24, "{prefix:?}");
+        // The innermost heading the chunk starts under is named, in full or cut short.
+        let inner = r
+            .section
+            .last()
+            .expect("the page's chapter heading is above every chunk");
+        let named = prefix.trim_end_matches(": ").rsplit(" > ").next().unwrap();
+        assert!(
+            inner.starts_with(named),
+            "#{}: {prefix:?} for {inner:?}",
+            r.chunk
+        );
+        if r.section.len() == 2 {
+            deep += 1;
+        }
+    }
+    assert!(deep > 5, "chunks under a question name it");
+    // The page's title is its chapter heading: a section path that starts with the title
+    // does not say it twice.
+    assert_eq!(
+        recs[0].prefix.as_deref(),
+        Some("Chapter 10. Debian and the kernel: ")
+    );
+
+    std::fs::write(d.join("bad.toml"), profile.replace("{section}", "{author}")).unwrap();
+    let err = fails(&kerf_in(d, &["cut", "-p", "bad.toml", "kernel.html"]));
+    assert!(
+        err.contains("bad.toml") && err.contains("unknown field `{author}`"),
+        "{err}"
+    );
+    let long = "schema = 1\nname = \"x\"\n[cut]\nwindow = 96\nprefix = \"passage of the maintenance archive, {section}: \"\nprefix_limit = 4\n";
+    std::fs::write(d.join("long.toml"), long).unwrap();
+    let err = fails(&kerf_in(d, &["cut", "-p", "long.toml", "kernel.html"]));
+    assert!(
+        err.contains("long.toml") && err.contains("raise prefix_limit"),
+        "{err}"
+    );
+}

@@ -340,3 +340,49 @@ fn the_binary_embeds_and_compares_with_a_late_chunking_profile() {
         "{probes}"
     );
 }
+
+/// Under a prefix template each document's pass begins with its first chunk's own prefix: a
+/// document that is a single chunk (texts of tests/fixtures/st_vectors.json, each titled by its
+/// fixture id) gets the same vector late as encoded alone with that prefix, through the engine
+/// path compare and sweep use.
+#[test]
+fn a_templated_prefix_leads_each_pass() {
+    use kerf::compare::engine::{self, Corpus};
+    let f = common::fixture("st_vectors.json");
+    let docs: Vec<kerf::corpus::Document> = f["texts"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| t["text"].as_str().unwrap())
+        .filter(|t| t.len() < 1500)
+        .enumerate()
+        .map(|(i, t)| kerf::corpus::Document::plain(format!("sample-{i}.txt"), "fixture", t))
+        .collect();
+    let (info, counter) = kerf::model::inspect(&common::model_dir()).unwrap();
+    let e = encoder(Engine::Packed);
+    let corpus = Corpus::new(docs, &counter).unwrap();
+    let mut p = kerf::profile::Profile::default();
+    p.cut.window = 512;
+    p.cut.boundary = kerf::profile::Boundary::Head;
+    p.cut.prefix = "{title}: ".into();
+    let alone = kerf::plan::resolve(&p, &info, &counter, "t").unwrap();
+    p.pool.context = 512;
+    let late = kerf::plan::resolve(&p, &info, &counter, "t").unwrap();
+    let chunks = engine::cut_corpus(&corpus, &alone, &counter);
+    for (d, cs) in corpus.docs.iter().zip(&chunks) {
+        // No headings in these texts: the title is the file name without its extension.
+        let want = format!("{}: ", d.id.trim_end_matches(".txt"));
+        assert_eq!(alone.prefix_of(&cs[0]), want);
+    }
+    let (a, _) = engine::embed_chunks(&corpus, &chunks, &alone, &e, None, &mut |_, _| {}).unwrap();
+    let (l, _) = engine::embed_chunks(&corpus, &chunks, &late, &e, None, &mut |_, _| {}).unwrap();
+    for ((d, a), l) in corpus.docs.iter().zip(&a).zip(&l) {
+        let c = cosine(&a[0], &l[0]);
+        assert!(c >= 0.99999, "{}: cosine {c}", d.id);
+    }
+    // And the prefix reached the encoder: the same text without it gives another vector.
+    let bare = e
+        .embed(&[&corpus.docs[0].text[chunks[0][0].byte_range.clone()]])
+        .unwrap();
+    assert!(cosine(&bare[0], &a[0][0]) < 0.9999);
+}

@@ -12,7 +12,8 @@
 //! Rendering rules, all here and nowhere else:
 //! - `{title}` is the document's own title (HTML `<title>`, PDF Title), else its first
 //!   heading, else its file name without the extension; `{section}` is the headings the chunk
-//!   starts under, outermost first, joined by " > ".
+//!   starts under, outermost first, joined by " > " (without the outermost when the template
+//!   names the title and that heading is the title).
 //! - A field that renders empty takes the separator before it with it (the one after it when it
 //!   is the first field); text before the first field and after the last always stays.
 //! - A rendered prefix that does not end in whitespace gets a space, so its tokens never merge
@@ -299,7 +300,10 @@ pub fn of_chunks(
     starts
         .into_iter()
         .map(|at| {
-            let path = index.path_at(at);
+            let mut path = index.path_at(at);
+            if !title.is_empty() && path.first().is_some_and(|h| h.trim() == title) {
+                path.remove(0); // the title is the outermost heading: said once
+            }
             if let Some(p) = seen.get(&path) {
                 return p.clone();
             }
