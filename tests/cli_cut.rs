@@ -21,6 +21,7 @@ fn cut_demo_texts_with_every_shipped_profile() {
         "sentences-256",
         "paragraphs-256-overlap",
         "tokens-512",
+        "sections-128",
     ] {
         let path = format!("profiles/{profile}.toml");
         let out = ok(&kerf(&["cut", "--profile", &path, "demo-texts"]));
@@ -31,9 +32,20 @@ fn cut_demo_texts_with_every_shipped_profile() {
                 .unwrap()
                 .cut
                 .window;
+        let mut formats = std::collections::BTreeSet::new();
+        let mut sources = std::collections::HashMap::new();
         for r in &recs {
-            let src =
-                std::fs::read_to_string(common::repo().join("demo-texts").join(&r.doc)).unwrap();
+            // HTML and PDF: byte ranges refer to the text `kerf text` prints.
+            let src = sources.entry(r.doc.clone()).or_insert_with(|| {
+                let path = common::repo().join("demo-texts").join(&r.doc);
+                match r.extracted {
+                    Some(_) => ok(&kerf(&["text", &path.to_string_lossy()])),
+                    None => std::fs::read_to_string(&path).unwrap(),
+                }
+            });
+            if let Some(f) = r.extracted {
+                formats.insert(format!("{f:?}"));
+            }
             assert_eq!(
                 &src[r.bytes[0]..r.bytes[1]],
                 r.text,
@@ -41,7 +53,9 @@ fn cut_demo_texts_with_every_shipped_profile() {
                 r.doc,
                 r.chunk
             );
-            let re = counter.count_input(&r.text).unwrap();
+            // A templated profile's records carry the prefix each chunk is embedded with.
+            let input = format!("{}{}", r.prefix.as_deref().unwrap_or(""), r.text);
+            let re = counter.count_input(&input).unwrap();
             assert!(
                 re <= window,
                 "{profile}: {}#{} re-encodes to {re} > {window}",
@@ -54,6 +68,11 @@ fn cut_demo_texts_with_every_shipped_profile() {
                 r.doc, r.chunk
             );
         }
+        assert_eq!(
+            formats.len(),
+            2,
+            "{profile}: chunks of the HTML page and the PDF"
+        );
         if profile == "head-256" {
             let docs: std::collections::BTreeSet<_> = recs.iter().map(|r| &r.doc).collect();
             assert_eq!(docs.len(), recs.len(), "head keeps one chunk per document");

@@ -135,7 +135,7 @@ fn explore_in_tmux_changes_plan_and_saves_a_profile() {
     let start = s.wait_for("window 256");
     assert!(header(&start).contains("overlap 0"), "{start}");
     assert!(header(&start).contains("boundary sentence"), "{start}");
-    assert!(start.contains("10 documents"), "{start}");
+    assert!(start.contains("12 documents"), "{start}");
     s.wait_for("broken.txt: left out: invalid UTF-8 at byte 3");
     // Wait for the first embedding (hash vectors) to finish, then change the plan.
     s.wait_for("compared with baseline-head-256");
