@@ -162,15 +162,18 @@ fn bf16_weights_cost_little_accuracy() {
 
 #[test]
 fn int8_costs_little_accuracy() {
-    // Tolerance (ours, from the measured figure): 7-bit weights per output column and 8-bit
-    // activations per row (kerf_kernels::qgemm). Measured over the 27 reference texts: worst
-    // cosine to the f32 vectors 0.9922, mean 0.9974 (notes/encoder-speed.md); held at >= 0.99.
-    // The integer sums are exact and the same on every CPU, so this figure does not drift.
+    // Tolerance (ours, from the measured figure): 8-bit weights per output column, 7-bit
+    // activations per row with each row's four largest entries kept in f32
+    // (kerf_kernels::qgemm). Measured over the 27 reference texts: worst cosine to the f32
+    // vectors 0.9978, mean 0.9993 (0.9922 and 0.9974 before the outliers were kept;
+    // notes/encoder-speed.md); held at >= 0.997. The integer sums are exact and the same on
+    // every CPU, so this figure does not drift.
     let cosines = cosines_to_f32(Precision::Int8);
     let worst = cosines.iter().copied().fold(1.0f32, f32::min);
     let mean = cosines.iter().sum::<f32>() / cosines.len() as f32;
     println!("int8: worst cosine to f32 {worst:.6}, mean {mean:.6}");
-    assert!(worst >= 0.99, "worst cosine {worst}");
+    assert!(worst >= 0.997, "worst cosine {worst}");
+    assert!(mean >= 0.999, "mean cosine {mean}");
     assert!(
         worst < 0.9999,
         "int8 vectors are f32's: the 8-bit product is not in use"
