@@ -8,7 +8,7 @@ Run by hand (needs pysbd==0.3.4 from PyPI; nothing else outside the standard lib
 DEBDIR holds three Debian bookworm packages fetched with `apt-get download` (each checked
 against the sha256 below):
   - debian-history 2.28: "A Brief History of Debian" in HTML, one edition per language; source
-    of de, es, fr, it and ja (the <p> elements of its chapters).
+    of de, es, fr, it and ja (the <p> elements of its chapters, less those left in English).
   - gnome-user-docs 43.0-2: the GNOME desktop help in Mallard XML, one folder per language;
     source of nl, zh (zh_CN) and hi. Pages are partly translated: a paragraph identical to one
     of the English (C) edition, or without the script of its language, is left out.
@@ -176,7 +176,9 @@ def main():
         subprocess.run(["dpkg-deb", "-x", path, root], check=True)
         roots[deb.split("_")[0]] = root
 
+    # Paragraphs left untranslated (equal to one of the English editions) are left out.
     english = set(collapse(p) for p in mallard(roots["gnome-user-docs"], "C"))
+    english |= set(collapse(p) for p in history(roots["debian-history"], "en"))
     sources = {
         "de": ("debian-history 2.28, docs/*.de.html", history(roots["debian-history"], "de")),
         "fr": ("debian-history 2.28, docs/*.fr.html", history(roots["debian-history"], "fr")),

@@ -8,8 +8,10 @@
 //! kilobyte (Kana means Japanese, Han without Kana Chinese, Devanagari Hindi, Arabic letters
 //! Arabic), and for Latin script a vote of short function words that are frequent in one of
 //! English, German, French, Spanish, Italian or Dutch and rare in the others (lists written from
-//! general knowledge of these languages). English wins ties and short paragraphs, which keeps
-//! the English behaviour unchanged.
+//! general knowledge of these languages). English wins ties, which keeps the English behaviour
+//! unchanged. A paragraph without evidence (no letters of those scripts, none of the function
+//! words: a list item such as "Xen 4.1.4;") takes the language of the paragraph before it in the
+//! same text, English at the start.
 
 /// A language whose sentence rules kerf knows. Text in another language gets the English rules,
 /// which are mostly script-neutral (UAX #29 plus corrections).
@@ -81,7 +83,13 @@ const SCRIPT_SAMPLE_BYTES: usize = 1024;
 const VOTE_WORDS: usize = 80;
 
 /// The language of `text` (one paragraph, or any sample of a document): see the module docs.
+/// English when `text` holds no evidence for any language.
 pub fn detect_language(text: &str) -> Language {
+    detect_or(text, Language::English)
+}
+
+/// The language of `text`, or `fallback` when it holds no evidence for any language.
+pub(super) fn detect_or(text: &str, fallback: Language) -> Language {
     let mut end = text.len().min(SCRIPT_SAMPLE_BYTES);
     while !text.is_char_boundary(end) {
         end -= 1;
@@ -123,12 +131,12 @@ pub fn detect_language(text: &str) -> Language {
             };
         }
     }
-    latin_vote(text)
+    latin_vote(text).unwrap_or(fallback)
 }
 
 /// The Latin-script language whose function words are most frequent among the first words of
-/// `text`; English on a tie or when fewer than two such words are found.
-fn latin_vote(text: &str) -> Language {
+/// `text`; English on a tie (with English or between others), `None` when none is found.
+fn latin_vote(text: &str) -> Option<Language> {
     use super::lexicon::FUNCTION_WORDS;
     let mut votes = [0usize; FUNCTION_WORDS.len()];
     let mut buf = [0u8; 8];
@@ -158,10 +166,7 @@ fn latin_vote(text: &str) -> Language {
         .enumerate()
         .max_by_key(|&(k, &v)| (v, std::cmp::Reverse(k)))
         .expect("the lists are not empty");
-    if n < 2 {
-        return Language::English;
-    }
-    FUNCTION_WORDS[best].0
+    (n > 0).then_some(FUNCTION_WORDS[best].0)
 }
 
 #[cfg(test)]

@@ -71,26 +71,29 @@ pub(super) const FUNCTION_WORDS: &[(Language, &[&str])] = &[
     "would",
     ]),
     (Language::German, &[
-        "auch", "auf", "bei", "das", "dem", "den", "der", "des", "die", "ein", "eine", "einen", "für",
-    "ich", "im", "ist", "mit", "nach", "nicht", "oder", "sich", "sind", "und", "von", "war",
-    "werden", "wir", "wird", "wurde", "zu", "über",
+        "auch", "auf", "aus", "bei", "bis", "das", "dass", "dem", "den", "der", "die", "durch",
+    "ein", "eine", "einen", "einer", "eines", "für", "hat", "ich", "im", "ist", "kann", "keine",
+    "mit", "nach", "nicht", "noch", "nur", "oder", "sich", "sie", "sind", "und", "unter", "von",
+    "war", "werden", "wie", "wir", "wird", "wurde", "wurden", "zu", "zum", "zur", "über",
     ]),
     (Language::French, &[
-        "au", "aux", "avec", "ce", "cette", "dans", "des", "du", "est", "et", "le", "les", "leur",
-    "mais", "nous", "ont", "par", "pas", "plus", "pour", "qui", "ses", "sont", "sur", "une",
-    "vous", "été",
+        "au", "aux", "avec", "ce", "cette", "comme", "dans", "des", "du", "elle", "est", "et", "ils",
+    "le", "les", "leur", "mais", "ne", "nous", "ont", "où", "par", "pas", "plus", "pour", "qu",
+    "qui", "ses", "sont", "sur", "une", "vous", "était", "été",
     ]),
     (Language::Spanish, &[
-        "al", "como", "desde", "el", "entre", "es", "esta", "este", "está", "fue", "hay", "las", "lo",
-    "los", "muy", "más", "para", "pero", "por", "se", "son", "su", "sus", "también", "una", "y",
+        "al", "como", "desde", "el", "entre", "es", "esta", "este", "está", "fue", "fueron", "hay",
+    "las", "lo", "los", "muy", "más", "para", "pero", "por", "se", "sobre", "son", "su", "sus",
+    "también", "una", "y",
     ]),
     (Language::Italian, &[
-        "alla", "anche", "che", "come", "degli", "dei", "della", "delle", "di", "essere", "gli", "ha",
-    "il", "ma", "nel", "nella", "non", "per", "più", "questa", "questo", "sono", "stato", "è",
+        "alla", "anche", "che", "dal", "dalla", "degli", "dei", "della", "delle", "di", "essere",
+    "gli", "ha", "il", "ma", "nel", "nella", "non", "per", "più", "questa", "questo", "sono",
+    "stato", "sul", "sulla", "è",
     ]),
     (Language::Dutch, &[
-        "aan", "als", "bij", "deze", "dit", "een", "er", "hebt", "heeft", "het", "je", "kunt", "maar",
-    "naar", "niet", "om", "ook", "u", "uw", "van", "voor", "wat", "worden", "wordt", "zijn",
+        "aan", "bij", "deze", "dit", "een", "er", "hebt", "heeft", "het", "je", "kunt", "maar", "naar",
+    "niet", "om", "ook", "op", "u", "uw", "van", "voor", "wat", "worden", "wordt", "zijn",
     ]),
 ];
 

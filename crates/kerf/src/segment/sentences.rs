@@ -7,7 +7,7 @@ use std::ops::Range;
 use unicode_segmentation::UnicodeSegmentation;
 
 use super::blocks::{is_bullet, ordered_label};
-use super::lang::{detect_language, Language};
+use super::lang::{detect_or, Language};
 use super::lexicon::*;
 use super::trim_range;
 
@@ -21,6 +21,8 @@ pub(super) struct Scratch {
     candidates: Vec<usize>,
     forced: Vec<usize>,
     cuts: Vec<usize>,
+    /// The language of the last prose paragraph, for the next one if it holds no evidence.
+    lang: Language,
 }
 
 /// Characters UAX #29 treats as paragraph separators; inside one of our paragraphs they are only
@@ -77,7 +79,8 @@ pub(super) fn prose_sentences(
 ) {
     let src = &text[para.clone()];
     let flat = flatten(src, &mut s.flat);
-    let lang = detect_language(flat);
+    let lang = detect_or(flat, s.lang);
+    s.lang = lang;
     uax_candidates(flat, &mut s.candidates);
     s.forced.clear();
     ellipsis_cuts(flat, &mut s.forced);
