@@ -11,7 +11,9 @@
 //! Sentences come from Unicode sentence boundaries (UAX #29, through `unicode-segmentation`)
 //! inside each prose or list paragraph, then corrected by rules UAX #29 leaves to the
 //! application: abbreviations and initials, list numbering, ellipses, URLs and e-mail
-//! addresses, and continuation in lower case. Code blocks give one unit per non-blank line,
+//! addresses, and continuation in lower case, some of them per language (German, French,
+//! Spanish, Italian, Dutch, Chinese, Japanese, Hindi, Arabic; chosen per paragraph, see
+//! `lang`). Code blocks give one unit per non-blank line,
 //! tables one per row and headings one per heading, so the splitter never cuts a log line or a
 //! table row in the middle.
 //!
