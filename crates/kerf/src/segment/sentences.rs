@@ -308,14 +308,14 @@ pub(super) fn keep_candidate(
     let glued = !flat[..b].ends_with(char::is_whitespace);
     if glued && flat[..b].ends_with(is_glued_opener) {
         // "。“分区": the quote opens the next sentence; cut before it.
+        // Only when the openers touch both the mark and the next word; otherwise as before.
         let kept = flat[..b].trim_end_matches(is_glued_opener);
-        if kept.len() <= seg_start
-            || kept.ends_with(char::is_whitespace)
-            || flat[b..].starts_with(char::is_whitespace)
+        if kept.len() > seg_start
+            && !kept.ends_with(char::is_whitespace)
+            && !flat[b..].starts_with(char::is_whitespace)
         {
-            return None;
+            b = kept.len();
         }
-        b = kept.len();
     }
     if glued {
         // "**Note.** The": the emphasis closes with the sentence; cut after it.
