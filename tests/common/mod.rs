@@ -1,6 +1,7 @@
 //! Helpers shared by the integration tests.
 #![allow(dead_code)]
 pub mod faq;
+pub mod fit;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 

@@ -340,7 +340,9 @@ pub(super) fn is_caps_title(line: &str) -> bool {
     let t = line.trim();
     let mut upper = 0;
     for c in t.chars() {
-        if c.is_lowercase() {
+        // Lower case, or a letter of a script without case (Han, Arabic, Devanagari): "完成。
+        // 如果没有及时输入 PIN，请返回" holds capitals but is no title.
+        if c.is_alphabetic() && !c.is_uppercase() {
             return false;
         }
         upper += usize::from(c.is_uppercase());

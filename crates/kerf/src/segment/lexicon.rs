@@ -1,5 +1,6 @@
 //! Word lists the sentence rules consult (each sorted by bytes, for binary search; a test checks
 //! the order).
+use super::lang::Language;
 
 /// Words that commonly begin a sentence (as capitalised; contractions are cut at the apostrophe).
 #[rustfmt::skip]
@@ -58,3 +59,88 @@ pub(super) const AMBIGUOUS: &[&str] = &[
     "hwy", "inc", "intl", "jr", "lb", "lbs", "llc", "ltd", "mins", "mt", "natl", "oz", "plc", "rd",
     "sq", "sr", "st", "univ", "yd", "yds", "yrs",
 ];
+
+/// Function words for the Latin-script language vote (see `lang`): frequent in their language
+/// and rare in the others, lower case, sorted by bytes. Written from general knowledge of these
+/// languages; words shared by several of them ("de", "la", "en", "que", "il") are left out.
+#[rustfmt::skip]
+pub(super) const FUNCTION_WORDS: &[(Language, &[&str])] = &[
+    (Language::English, &[
+        "and", "are", "be", "been", "but", "for", "from", "has", "have", "not", "of", "that", "the",
+    "their", "there", "they", "this", "to", "was", "were", "what", "when", "which", "with",
+    "would",
+    ]),
+    (Language::German, &[
+        "auch", "auf", "aus", "bei", "bis", "das", "dass", "dem", "den", "der", "die", "durch",
+    "ein", "eine", "einen", "einer", "eines", "für", "hat", "ich", "im", "ist", "kann", "keine",
+    "mit", "nach", "nicht", "noch", "nur", "oder", "sich", "sie", "sind", "und", "unter", "von",
+    "war", "werden", "wie", "wir", "wird", "wurde", "wurden", "zu", "zum", "zur", "über",
+    ]),
+    (Language::French, &[
+        "au", "aux", "avec", "ce", "cette", "comme", "dans", "des", "du", "elle", "est", "et", "ils",
+    "le", "les", "leur", "mais", "ne", "nous", "ont", "où", "par", "pas", "plus", "pour", "qu",
+    "qui", "ses", "sont", "sur", "une", "vous", "était", "été",
+    ]),
+    (Language::Spanish, &[
+        "al", "como", "desde", "el", "entre", "es", "esta", "este", "está", "fue", "fueron", "hay",
+    "las", "lo", "los", "muy", "más", "para", "pero", "por", "se", "sobre", "son", "su", "sus",
+    "también", "una", "y",
+    ]),
+    (Language::Italian, &[
+        "alla", "anche", "che", "dal", "dalla", "degli", "dei", "della", "delle", "di", "essere",
+    "gli", "ha", "il", "ma", "nel", "nella", "non", "per", "più", "questa", "questo", "sono",
+    "stato", "sul", "sulla", "è",
+    ]),
+    (Language::Dutch, &[
+        "aan", "bij", "deze", "dit", "een", "er", "hebt", "heeft", "het", "je", "kunt", "maar", "naar",
+    "niet", "om", "ook", "op", "u", "uw", "van", "voor", "wat", "worden", "wordt", "zijn",
+    ]),
+];
+
+/// German abbreviations that practically never end a sentence (lower case, without the final
+/// period, sorted by bytes; written from general knowledge of the language).
+#[rustfmt::skip]
+pub(super) const DE_INNER: &[&str] = &[
+    "abb", "abs", "abt", "allg", "anm", "bd", "bspw", "bzgl", "bzw", "ca", "chr", "d.h", "dgl",
+    "ebd", "evtl", "fa", "frl", "geb", "gebr", "gegr", "gest", "ggf", "hr", "hrsg", "inkl", "jh",
+    "jhd", "kap", "mio", "mrd", "nr", "o.a", "o.g", "prof", "sog", "std", "str", "tel", "u.a",
+    "u.u", "usf", "v.a", "vgl", "z.b", "z.t", "ziff", "zit", "zzgl",
+];
+
+/// French abbreviations that practically never end a sentence (lower case, without the final
+/// period, sorted by bytes; written from general knowledge of the language).
+#[rustfmt::skip]
+pub(super) const FR_INNER: &[&str] = &[
+    "apr", "av", "boul", "c.-à-d", "cf", "chap", "env", "févr", "hab", "ibid", "janv", "mgr",
+    "mlle", "mm", "mme", "n°", "p.ex", "réf", "s.d", "sq", "ste", "suiv", "tél", "vol", "éd",
+];
+
+/// Spanish abbreviations that practically never end a sentence (lower case, without the final
+/// period, sorted by bytes; written from general knowledge of the language).
+#[rustfmt::skip]
+pub(super) const ES_INNER: &[&str] = &[
+    "a.c", "aprox", "art", "avda", "cap", "cía", "d.c", "dcha", "dr", "dra", "dto", "ej", "gral",
+    "izq", "izqda", "lic", "ntra", "núm", "p.ej", "pral", "prof", "pza", "pág", "págs", "sr",
+    "sra", "sres", "srta", "sta", "sto", "tel", "ud", "uds", "vd", "vds", "vol",
+];
+
+/// Italian abbreviations that practically never end a sentence (lower case, without the final
+/// period, sorted by bytes; written from general knowledge of the language).
+#[rustfmt::skip]
+pub(super) const IT_INNER: &[&str] = &[
+    "all", "art", "avv", "c.a", "cap", "cfr", "dott", "dr", "fig", "ing", "lett", "p.es", "pag",
+    "pagg", "prof", "rag", "sig", "sigg", "tab", "tel", "vol",
+];
+
+/// Dutch abbreviations that practically never end a sentence (lower case, without the final
+/// period, sorted by bytes; written from general knowledge of the language).
+#[rustfmt::skip]
+pub(super) const NL_INNER: &[&str] = &[
+    "a.u.b", "bijv", "blz", "bv", "ca", "d.w.z", "dhr", "dr", "e.a", "e.d", "evt", "fig", "i.p.v",
+    "ing", "ir", "jl", "jr", "m.a.w", "mevr", "mr", "mw", "nr", "o.a", "prof", "red", "resp",
+    "t.a.v", "t.o.v", "v.chr", "vgl", "zgn",
+];
+
+/// Abbreviations for "and so on" in the languages above: like "etc.", they end a sentence
+/// before a capitalised word.
+pub(super) const ETC: &[&str] = &["ecc", "enz", "etc", "usw"];

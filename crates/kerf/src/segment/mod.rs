@@ -11,7 +11,9 @@
 //! Sentences come from Unicode sentence boundaries (UAX #29, through `unicode-segmentation`)
 //! inside each prose or list paragraph, then corrected by rules UAX #29 leaves to the
 //! application: abbreviations and initials, list numbering, ellipses, URLs and e-mail
-//! addresses, and continuation in lower case. Code blocks give one unit per non-blank line,
+//! addresses, and continuation in lower case, some of them per language (German, French,
+//! Spanish, Italian, Dutch, Chinese, Japanese, Hindi, Arabic; chosen per paragraph, see
+//! `lang`). Code blocks give one unit per non-blank line,
 //! tables one per row and headings one per heading, so the splitter never cuts a log line or a
 //! table row in the middle.
 //!
@@ -21,12 +23,16 @@
 //! text, which a property test checks).
 //!
 //! Files: `blocks` finds paragraphs from the line structure, `sentences` cuts prose into
-//! sentences, `lexicon` holds the word lists the sentence rules consult.
+//! sentences, `lang` chooses each paragraph's language for the rules that depend on it,
+//! `lexicon` holds the word lists the sentence rules consult.
 use std::ops::Range;
 
 mod blocks;
+mod lang;
 mod lexicon;
 mod sentences;
+
+pub use lang::{detect_language, Language};
 
 use blocks::{find_paragraphs, line_units};
 use sentences::{prose_sentences, Scratch};
@@ -639,6 +645,19 @@ mod tests {
         }
         for list in [TITLES, INNER, NUMBERED, NUMBERED_WORDS, AMBIGUOUS] {
             assert!(list.iter().all(|w| w.len() <= 16 && *w == w.to_lowercase()));
+        }
+        let per_language = [DE_INNER, FR_INNER, ES_INNER, IT_INNER, NL_INNER, ETC];
+        let function_words = FUNCTION_WORDS.iter().map(|(_, list)| *list);
+        for list in per_language.into_iter().chain(function_words) {
+            assert!(
+                list.windows(2).all(|w| w[0].as_bytes() < w[1].as_bytes()),
+                "{list:?}"
+            );
+            assert!(list.iter().all(|w| *w == w.to_lowercase()), "{list:?}");
+        }
+        // The language vote folds only ASCII capitals and skips words longer than 8 bytes.
+        for (_, list) in FUNCTION_WORDS {
+            assert!(list.iter().all(|w| w.len() <= 8), "{list:?}");
         }
     }
 }

@@ -1,11 +1,13 @@
 //! Sentences of prose: Unicode sentence boundaries (UAX #29) in short windows around possible
 //! terminals, corrected for abbreviations and initials, list numbering, ellipses, URLs and
-//! e-mail addresses, and continuation in lower case.
+//! e-mail addresses, and continuation in lower case; some of the corrections depend on the
+//! paragraph's language (see `lang`).
 use std::ops::Range;
 
 use unicode_segmentation::UnicodeSegmentation;
 
 use super::blocks::{is_bullet, ordered_label};
+use super::lang::{detect_or, Language};
 use super::lexicon::*;
 use super::trim_range;
 
@@ -19,6 +21,8 @@ pub(super) struct Scratch {
     candidates: Vec<usize>,
     forced: Vec<usize>,
     cuts: Vec<usize>,
+    /// The language of the last prose paragraph, for the next one if it holds no evidence.
+    lang: Language,
 }
 
 /// Characters UAX #29 treats as paragraph separators; inside one of our paragraphs they are only
@@ -75,13 +79,18 @@ pub(super) fn prose_sentences(
 ) {
     let src = &text[para.clone()];
     let flat = flatten(src, &mut s.flat);
+    let lang = detect_or(flat, s.lang);
+    s.lang = lang;
     uax_candidates(flat, &mut s.candidates);
     s.forced.clear();
     ellipsis_cuts(flat, &mut s.forced);
     inline_list_cuts(flat, &mut s.forced);
+    if lang == Language::Arabic {
+        arabic_comma_cuts(flat, &mut s.forced);
+    }
     s.forced.sort_unstable();
     s.forced.dedup();
-    choose_cuts(flat, &s.candidates, &s.forced, &mut s.cuts);
+    choose_cuts(flat, &s.candidates, &s.forced, &mut s.cuts, lang);
 
     let mut start = 0;
     for &cut in s.cuts.iter().chain(std::iter::once(&flat.len())) {
@@ -195,6 +204,7 @@ pub(super) fn choose_cuts(
     candidates: &[usize],
     forced: &[usize],
     cuts: &mut Vec<usize>,
+    lang: Language,
 ) {
     cuts.clear();
     let mut seg_start = 0;
@@ -209,7 +219,7 @@ pub(super) fn choose_cuts(
             continue;
         }
         let next = candidates.get(k + 1).copied().unwrap_or(flat.len());
-        if let Some(cut) = keep_candidate(flat, seg_start, b, next, &mut links) {
+        if let Some(cut) = keep_candidate(flat, seg_start, b, next, &mut links, lang) {
             cuts.push(cut);
             seg_start = cut;
         }
@@ -233,20 +243,55 @@ pub(super) fn take_forced(
     }
 }
 
-/// Quotes and closing brackets that end with a sentence, and Markdown emphasis and code marks.
+/// Quotes and closing brackets that end with a sentence (CJK ones included), and Markdown
+/// emphasis and code marks.
 pub(super) fn is_closer(c: char) -> bool {
     matches!(
         c,
         '"' | '\'' | '”' | '’' | '»' | '›' | ')' | ']' | '}' | '*' | '_' | '`' | '~'
-    )
+    ) || matches!(c, '」' | '』' | '）' | '】' | '〉' | '》' | '〕' | '］')
 }
 
-/// Quotes and opening brackets that start a sentence, and Markdown emphasis marks.
+/// Quotes and opening brackets that start a sentence (CJK ones included), and Markdown emphasis
+/// marks.
 pub(super) fn is_opener(c: char) -> bool {
     matches!(
         c,
         '"' | '\'' | '“' | '‘' | '«' | '‹' | '(' | '[' | '{' | '*' | '_' | '`'
-    )
+    ) || is_cjk_opener(c)
+}
+
+/// Opening brackets and quotes of CJK text.
+pub(super) fn is_cjk_opener(c: char) -> bool {
+    matches!(c, '「' | '『' | '（' | '【' | '〈' | '《' | '〔' | '［')
+}
+
+/// Opening quotes and brackets that UAX #29 leaves with the sentence before when no space
+/// separates them from its mark ("。“分区", "插紧。(小心"): they belong to the next one. Straight
+/// quotes are left out (they open and close alike).
+fn is_glued_opener(c: char) -> bool {
+    matches!(c, '“' | '‘' | '(' | '[') || is_cjk_opener(c)
+}
+
+/// Sentence marks that end a sentence whatever follows, lower case included: the ideographic
+/// full stop and the full-width marks of CJK text, the danda and double danda of Devanagari,
+/// and the Arabic question mark and full stop.
+pub(super) fn is_hard_stop(c: char) -> bool {
+    matches!(c, '。' | '！' | '？' | '｡' | '।' | '॥' | '؟' | '۔')
+}
+
+/// Cuts after the Arabic comma (،) followed by a space. pysbd 0.3.4, the reference for Arabic
+/// (tests/sentences_multilingual.rs), ends sentences there: Arabic prose links many clauses with
+/// "، و" where English would start new sentences, so these are the units a reader (and the
+/// splitter) can cut between.
+pub(super) fn arabic_comma_cuts(flat: &str, out: &mut Vec<usize>) {
+    for (i, _) in flat.match_indices('،') {
+        let rest = &flat[i + '،'.len_utf8()..];
+        let t = rest.trim_start();
+        if t.len() < rest.len() && t.chars().next().is_some_and(char::is_alphanumeric) {
+            out.push(flat.len() - t.len());
+        }
+    }
 }
 
 /// Decide one UAX #29 candidate boundary `b` of the segment starting at `seg_start` (the next
@@ -257,9 +302,21 @@ pub(super) fn keep_candidate(
     mut b: usize,
     next: usize,
     links: &mut LinkCache,
+    lang: Language,
 ) -> Option<usize> {
     let bytes = flat.as_bytes();
     let glued = !flat[..b].ends_with(char::is_whitespace);
+    if glued && flat[..b].ends_with(is_glued_opener) {
+        // "。“分区": the quote opens the next sentence; cut before it.
+        // Only when the openers touch both the mark and the next word; otherwise as before.
+        let kept = flat[..b].trim_end_matches(is_glued_opener);
+        if kept.len() > seg_start
+            && !kept.ends_with(char::is_whitespace)
+            && !flat[b..].starts_with(char::is_whitespace)
+        {
+            b = kept.len();
+        }
+    }
     if glued {
         // "**Note.** The": the emphasis closes with the sentence; cut after it.
         let marks = bytes[b..next]
@@ -298,6 +355,17 @@ pub(super) fn keep_candidate(
         return None;
     };
     let after = next_word(&flat[b..]);
+    // A quotation closed by 」 or 』 and followed by a particle in Hiragana ("…でした!」と報告")
+    // continues the sentence.
+    if closers.ends_with(['」', '』']) && after.first.is_some_and(is_hiragana) {
+        return None;
+    }
+    if is_hard_stop(term) {
+        return flat[b..next]
+            .chars()
+            .any(char::is_alphanumeric)
+            .then_some(b);
+    }
     // Continuation in lower case: "Yahoo! in", "'Great.' she said", "e.g. the".
     if after.first.is_some_and(char::is_lowercase) {
         return None;
@@ -324,7 +392,7 @@ pub(super) fn keep_candidate(
         return None;
     }
     let word = last_word(core);
-    let keep = match classify(word) {
+    let keep = match classify_in(word, lang) {
         Abbr::None => true,
         Abbr::Title | Abbr::Inner => false,
         Abbr::Numbered | Abbr::NumberedWord if after.is_number_like() => false,
@@ -377,6 +445,46 @@ pub(super) enum Abbr {
     Initial,
     /// etc.: ends a sentence before any capitalised word.
     Etc,
+}
+
+/// Hiragana, which in Japanese marks particles and endings: never the start of a sentence after
+/// a closing quote.
+fn is_hiragana(c: char) -> bool {
+    matches!(c, '\u{3041}'..='\u{309f}')
+}
+
+/// Classify the word before a period in a paragraph of language `lang`: the language's own
+/// abbreviations and conventions first (German ordinals, "z. B." and "d. h."), then the general
+/// rules of `classify`.
+pub(super) fn classify_in(word: &str, lang: Language) -> Abbr {
+    let list: &[&str] = match lang {
+        Language::German => DE_INNER,
+        Language::French => FR_INNER,
+        Language::Spanish => ES_INNER,
+        Language::Italian => IT_INNER,
+        Language::Dutch => NL_INNER,
+        _ => return classify(word),
+    };
+    let bare = word.strip_suffix('.').unwrap_or(word);
+    if lang == Language::German {
+        // "am 3. Oktober", "die 13. DebConf", "im 20. Jahrhundert": a number of one or two
+        // digits with a period is an ordinal (a year such as "1993." ends the sentence).
+        if (1..=2).contains(&bare.len()) && bare.bytes().all(|b| b.is_ascii_digit()) {
+            return Abbr::Inner;
+        }
+        // "d. h.", "z. B.", "u. a.", "Anm. d. Ü.": a single lower-case letter is abbreviated.
+        if bare.len() == 1 && bare.bytes().all(|b| b.is_ascii_lowercase()) {
+            return Abbr::Inner;
+        }
+    }
+    let lower = bare.to_lowercase();
+    if ETC.binary_search(&lower.as_str()).is_ok() {
+        return Abbr::Etc;
+    }
+    if list.binary_search(&lower.as_str()).is_ok() {
+        return Abbr::Inner;
+    }
+    classify(word)
 }
 
 /// Classify the word before a period (`word` still ends with the period).
