@@ -73,20 +73,20 @@ pub fn resolve(
         })
     };
     let c = &profile.cut;
-    if c.window > info.max_position_embeddings {
+    if c.window > info.usable_positions() {
         return err(format!(
-            "[cut] window {} exceeds the model's limit of {} positions (config.json max_position_embeddings in {})",
+            "[cut] window {} exceeds the model's limit of {} positions ({})",
             c.window,
-            info.max_position_embeddings,
-            info.dir.display()
+            info.usable_positions(),
+            info.limit_origin()
         ));
     }
     let context = profile.pool.context;
-    if context > info.max_position_embeddings {
+    if context > info.usable_positions() {
         return err(format!(
-            "[pool] context {context} exceeds the model's limit of {} positions (config.json max_position_embeddings in {})",
-            info.max_position_embeddings,
-            info.dir.display()
+            "[pool] context {context} exceeds the model's limit of {} positions ({})",
+            info.usable_positions(),
+            info.limit_origin()
         ));
     }
     let prefix_tokens = if c.prefix.is_empty() {
