@@ -312,7 +312,7 @@ pub fn run(a: SurveyArgs) -> Result<()> {
                 loaded.info.dir.display(),
                 plan.window,
                 plan.budget(),
-                plan.specials + plan.prefix_tokens,
+                plan.window - plan.budget(),
             )
         } else {
             format!(
@@ -320,7 +320,7 @@ pub fn run(a: SurveyArgs) -> Result<()> {
                 stats.documents,
                 plan.window,
                 plan.budget(),
-                plan.specials + plan.prefix_tokens,
+                plan.window - plan.budget(),
                 if plan.prefix_tokens > 0 { " and prefix tokens" } else { " tokens" },
                 loaded.info.usable_positions()
             )

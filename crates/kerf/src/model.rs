@@ -621,3 +621,212 @@ pub fn inspect(dir: &Path) -> Result<(ModelInfo, TokenCounter), ModelError> {
         }),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn layouts() -> PathBuf {
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("../../tests/fixtures/model-layouts")
+    }
+
+    /// What sentence-transformers 6.3 reported when it loaded each fixture folder
+    /// (tests/reference/model_layouts.py).
+    fn expected() -> Value {
+        let p = layouts().join("expected.json");
+        serde_json::from_str(&std::fs::read_to_string(&p).unwrap()).unwrap()
+    }
+
+    const FOLDERS: &[&str] = &[
+        "bert-st6",
+        "st2-layout",
+        "roberta-st6",
+        "xlmr-st6",
+        "mpnet-st6",
+        "bert-lasttoken",
+        "bert-weightedmean",
+        "electra-st6",
+    ];
+
+    #[test]
+    fn every_layout_reads_as_sentence_transformers_reads_it() {
+        let all = expected();
+        for name in FOLDERS {
+            let want = &all[*name];
+            let (info, _) =
+                inspect(&layouts().join(name)).unwrap_or_else(|e| panic!("{name}: {e}"));
+            // sentence-transformers 6.3: model.max_seq_length.
+            assert_eq!(
+                info.configured_max_tokens,
+                want["max_seq_length"].as_u64().map(|n| n as usize),
+                "{name}: configured length"
+            );
+            // get_sentence_embedding_dimension() (one pooling mode: the model width).
+            let dim = want["dimension"].as_u64().unwrap() as usize;
+            assert_eq!(info.hidden_size, dim, "{name}: width");
+            let pooling = info.pooling.as_ref().unwrap();
+            assert_eq!(pooling.dimension, Some(dim), "{name}: pooling width");
+            // The Pooling module's pooling_mode, in kerf's spelling.
+            let st_mode = want["pooling_mode"].as_str().unwrap();
+            assert_eq!(
+                Some(pooling.mode.as_str()),
+                pooling_name(st_mode),
+                "{name}: pooling"
+            );
+            // A Normalize module follows the pooling.
+            assert_eq!(
+                info.normalize,
+                want["normalize"].as_bool().unwrap(),
+                "{name}: normalise"
+            );
+            // model.prompts (empty prompts left out on both sides) and default_prompt_name.
+            let prompts: BTreeMap<String, String> =
+                serde_json::from_value(want["prompts"].clone()).unwrap();
+            assert_eq!(info.prompts, prompts, "{name}: prompts");
+            assert_eq!(
+                info.default_prompt_name.as_deref(),
+                want["default_prompt_name"].as_str(),
+                "{name}: default prompt"
+            );
+            // The tokenizer's specials on an empty input (transformers' fast tokenizer).
+            assert_eq!(
+                info.specials_per_input as u64,
+                want["specials_per_input"].as_u64().unwrap(),
+                "{name}: specials"
+            );
+            assert_eq!(
+                info.max_position_embeddings as u64,
+                want["max_position_embeddings"].as_u64().unwrap()
+            );
+        }
+    }
+
+    #[test]
+    fn the_configured_length_is_read_from_the_file_each_layout_keeps_it_in() {
+        let src = |n: &str| inspect(&layouts().join(n)).unwrap().0.configured_from;
+        // Older layout (the default model's): sentence_bert_config.json max_seq_length, even
+        // though tokenizer_config.json says 512 (all-MiniLM-L6-v2 has both, 256 and 512).
+        assert_eq!(src("st2-layout"), Some(LengthSource::SentenceBertConfig));
+        // 6.x: tokenizer_config.json model_max_length.
+        assert_eq!(src("bert-st6"), Some(LengthSource::TokenizerConfig));
+        // transformers writes about 1e30 for "no limit": not a length.
+        let huge: Value = serde_json::json!({"model_max_length": 1_000_000_000_000_000_019_884_624_838_656.0_f64});
+        assert_eq!(configured_length(None, Some(&huge)), None);
+        let kw: Value = serde_json::json!({"processor_kwargs": {"model_max_length": 300}});
+        assert_eq!(
+            configured_length(Some(&kw), None),
+            Some((300, LengthSource::ProcessorKwargs))
+        );
+    }
+
+    #[test]
+    fn roberta_style_families_lose_the_padding_offset() {
+        // transformers: RobertaEmbeddings / XLMRobertaEmbeddings number positions from
+        // padding_idx + 1 with padding_idx = pad_token_id (1); MPNetEmbeddings fixes
+        // padding_idx = 1. So 514 positions hold 512 tokens; BERT keeps all 512.
+        for (name, usable) in [
+            ("roberta-st6", 512),
+            ("xlmr-st6", 512),
+            ("mpnet-st6", 512),
+            ("bert-st6", 512),
+        ] {
+            let (info, _) = inspect(&layouts().join(name)).unwrap();
+            assert_eq!(info.usable_positions(), usable, "{name}");
+        }
+        // sentence-transformers reports max_seq_length 514 for the RoBERTa folder (it caps the
+        // tokenizer's model_max_length at max_position_embeddings, not at the usable
+        // positions); kerf plans with 512.
+        let (info, _) = inspect(&layouts().join("roberta-st6")).unwrap();
+        assert_eq!(expected()["roberta-st6"]["max_seq_length"], 514);
+        assert_eq!(info.default_window(), 512);
+    }
+
+    #[test]
+    fn the_passage_prompt_is_the_one_put_before_chunks() {
+        let (info, _) = inspect(&layouts().join("bert-st6")).unwrap();
+        // default_prompt_name is "query": a chunk is a passage, so the passage prompt is used.
+        assert_eq!(info.passage_prompt(), Some(("passage", "passage: ")));
+        let (info, _) = inspect(&layouts().join("xlmr-st6")).unwrap();
+        assert_eq!(info.passage_prompt(), Some(("document", "document: ")));
+        let (info, _) = inspect(&layouts().join("roberta-st6")).unwrap();
+        assert_eq!(info.passage_prompt(), None);
+    }
+
+    #[test]
+    fn what_kerf_cannot_run_is_refused_with_every_reason_named() {
+        let reasons = |n: &str| {
+            inspect(&layouts().join(n))
+                .unwrap()
+                .0
+                .unsupported()
+                .join("\n")
+        };
+        let r = reasons("electra-st6");
+        assert!(r.contains("architecture `electra`"), "{r}");
+        assert!(
+            r.contains("supported: bert, roberta, xlm-roberta, distilbert, mpnet"),
+            "{r}"
+        );
+        let r = reasons("bert-lasttoken");
+        assert!(
+            r.contains("1_Pooling/config.json: pooling mode `last-token`"),
+            "{r}"
+        );
+        let r = reasons("bert-weightedmean");
+        assert!(r.contains("`weighted-mean`"), "{r}");
+        // The fixtures carry no weights.
+        assert!(reasons("bert-st6").contains("model.safetensors: missing"));
+        let (info, _) = inspect(&layouts().join("electra-st6")).unwrap();
+        let e = info.check_runnable().unwrap_err().to_string();
+        assert!(e.contains("kerf cannot make vectors"), "{e}");
+    }
+
+    #[test]
+    fn pooling_configs_of_both_layouts_and_bad_ones() {
+        // The older layout: one boolean per mode (all-MiniLM-L6-v2's 1_Pooling/config.json).
+        let old = serde_json::json!({"word_embedding_dimension": 384,
+            "pooling_mode_cls_token": false, "pooling_mode_mean_tokens": true,
+            "pooling_mode_max_tokens": false, "pooling_mode_mean_sqrt_len_tokens": false});
+        let p = read_pooling(&old, "1_Pooling/config.json").unwrap();
+        assert_eq!((p.mode.as_str(), p.dimension), ("mean", Some(384)));
+        // None set reads as mean (sentence-transformers 6.3 pooling.py,
+        // _convert_legacy_pooling_kwargs).
+        let none = serde_json::json!({"pooling_mode_cls_token": false});
+        assert_eq!(read_pooling(&none, "f").unwrap().mode, "mean");
+        // Several modes are concatenated by sentence-transformers: refused with their names.
+        let two = serde_json::json!({"embedding_dimension": 8, "pooling_mode": ["cls", "mean"]});
+        let p = read_pooling(&two, "1_Pooling/config.json").unwrap();
+        assert_eq!(p.modes, ["cls", "mean"]);
+        assert!(p.unsupported().unwrap().contains("cls + mean"));
+        let bad = serde_json::json!({"pooling_mode": "median"});
+        let e = read_pooling(&bad, "1_Pooling/config.json").unwrap_err();
+        assert!(
+            e.contains("1_Pooling/config.json: unknown pooling mode `median`"),
+            "{e}"
+        );
+        let bad = serde_json::json!({"pooling_mode": 3});
+        assert!(read_pooling(&bad, "f").is_err());
+        let no_prompt = serde_json::json!({"pooling_mode": "mean", "include_prompt": false});
+        let p = read_pooling(&no_prompt, "f").unwrap();
+        assert!(p.unsupported().unwrap().contains("include_prompt"));
+    }
+
+    #[test]
+    fn a_malformed_prompts_block_names_its_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let src = layouts().join("bert-st6");
+        for f in ["config.json", "tokenizer.json", "modules.json"] {
+            std::fs::copy(src.join(f), dir.path().join(f)).unwrap();
+        }
+        std::fs::write(
+            dir.path().join("config_sentence_transformers.json"),
+            r#"{"prompts": {"query": 7}}"#,
+        )
+        .unwrap();
+        let e = inspect(dir.path()).err().unwrap().to_string();
+        assert!(
+            e.contains("config_sentence_transformers.json: prompt `query` must be a string"),
+            "{e}"
+        );
+    }
+}

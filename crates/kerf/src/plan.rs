@@ -98,7 +98,8 @@ pub fn resolve(
         })?
     };
     let specials = counter.specials_per_input();
-    let fixed = specials + prefix_tokens;
+    // A tokenizer that marks an input's first word may add a token to a chunk's start.
+    let fixed = specials + prefix_tokens + counter.start_slack_tokens();
     if c.window <= fixed {
         return err(format!(
             "[cut] window {} leaves no room for text: {specials} special tokens and {prefix_tokens} prefix tokens take {fixed}",
