@@ -307,7 +307,7 @@ pub fn run(a: SurveyArgs) -> Result<()> {
             .unwrap_or_default();
         let mut header = if tokenizer_only {
             format!(
-                "survey of {} documents · tokenizer {} · window {} tokens ({} for text after {} special tokens)\n{NO_VECTORS_NOTE}",
+                "survey of {} documents · tokenizer {} · window {} tokens ({} for text after {} tokens of specials, prefix and start reserve)\n{NO_VECTORS_NOTE}",
                 stats.documents,
                 loaded.info.dir.display(),
                 plan.window,

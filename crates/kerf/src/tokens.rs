@@ -122,6 +122,19 @@ fn prepends_space(v: &serde_json::Value) -> bool {
     }
 }
 
+/// Whether a pre-tokenizer cuts words apart at whitespace and keeps no space with them
+/// (BERT's, Whitespace, WhitespaceSplit): then text joined at a word start (a prefix and a
+/// chunk) encodes to the sum of its parts.
+fn splits_apart(v: &serde_json::Value) -> bool {
+    match v["type"].as_str() {
+        Some("BertPreTokenizer" | "Whitespace" | "WhitespaceSplit") => true,
+        Some("Sequence") => v["pretokenizers"]
+            .as_array()
+            .is_some_and(|items| items.iter().any(splits_apart)),
+        _ => false,
+    }
+}
+
 /// Turn off offset trimming in byte-level post-processors (RoBERTa-style tokenizers), so a
 /// token's byte range includes the space the token carries (`Ġword` covers " word").
 ///
@@ -193,8 +206,12 @@ impl TokenCounter {
         let start_slack_tokens = std::fs::read_to_string(path)
             .ok()
             .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
-            .map_or(0, |v| {
-                usize::from(prepends_space(&v["normalizer"]) || prepends_space(&v["pre_tokenizer"]))
+            .map_or(1, |v| {
+                usize::from(
+                    prepends_space(&v["normalizer"])
+                        || prepends_space(&v["pre_tokenizer"])
+                        || !splits_apart(&v["pre_tokenizer"]),
+                )
             });
         Ok(Self {
             specials_per_input: empty.len(),
@@ -214,11 +231,13 @@ impl TokenCounter {
     /// Tokens a chunk may gain at its start when encoded on its own: 1 when the tokenizer puts
     /// a space marker before an input's first word (Metaspace with a prepend scheme, byte-level
     /// with `add_prefix_space`, a Prepend normalizer), which a word after a line break inside
-    /// the document did not have; else 0. [`crate::plan::resolve`] keeps it out of the budget.
+    /// the document did not have, or when its pre-tokenizer keeps spaces with words (byte-level
+    /// BPE: a prefix ending in a space merges with the chunk's first word); 0 for BERT-style
+    /// pre-tokenizers. [`crate::plan::resolve`] keeps it out of the budget.
     ///
-    /// Measured, not proven: on the Debian FAQ, a Unigram (Metaspace, prepend "always")
-    /// tokenizer's chunks re-encoded to at most one token more than their in-document count
-    /// (tests/cli_model.rs).
+    /// Measured, not proven: on the Debian FAQ, byte-level BPE and Unigram (Metaspace, prepend
+    /// "always") chunks re-encoded to at most one token more than their in-document count
+    /// (tests/cli_model.rs, tests/split_other_tokenizers.rs).
     pub fn start_slack_tokens(&self) -> usize {
         self.start_slack_tokens
     }
