@@ -5,7 +5,12 @@ use std::path::PathBuf;
 use anyhow::{Context, Result};
 use clap::Args;
 
-use super::{load_plan, open_output, report_notices, InputArgs, PlanArgs};
+use kerf::profile::{Boundary, Profile};
+
+use super::{
+    load_plan, load_plan_tokenizer, open_output, report_notices, InputArgs, PlanArgs,
+    NO_VECTORS_NOTE,
+};
 
 #[derive(Args)]
 pub struct CutArgs {
@@ -19,13 +24,44 @@ pub struct CutArgs {
     /// Replace an existing output file.
     #[arg(long)]
     pub force: bool,
+    /// Count with this tokenizer.json instead of a model folder's (needs --window): cut for a
+    /// model kerf cannot run, or before choosing one. No vectors can be made with it.
+    #[arg(
+        long,
+        value_name = "FILE",
+        requires = "window",
+        conflicts_with = "model"
+    )]
+    pub tokenizer: Option<PathBuf>,
+    /// Tokens per encoder input, specials included, with --tokenizer (replaces the profile's
+    /// window; without a profile, sentence boundaries and no overlap).
+    #[arg(long, requires = "tokenizer")]
+    pub window: Option<usize>,
 }
 
 pub fn run(a: CutArgs) -> Result<()> {
-    if a.plan.profile.is_none() {
-        anyhow::bail!("kerf cut needs --profile FILE (see profiles/ for ready-made plans)");
-    }
-    let loaded = load_plan(&a.plan, |_| unreachable!("a profile was given"))?;
+    let loaded = match (&a.tokenizer, a.window) {
+        (Some(t), Some(w)) => {
+            let loaded = load_plan_tokenizer(a.plan.profile.as_deref(), t, w, |_| {
+                let mut p = Profile {
+                    name: "cut".into(),
+                    ..Default::default()
+                };
+                p.cut.boundary = Boundary::Sentence;
+                p
+            })?;
+            eprintln!("kerf: note: {NO_VECTORS_NOTE}");
+            loaded
+        }
+        _ => {
+            if a.plan.profile.is_none() {
+                anyhow::bail!(
+                    "kerf cut needs --profile FILE (see profiles/ for ready-made plans), or --tokenizer FILE --window N"
+                );
+            }
+            load_plan(&a.plan, |_| unreachable!("a profile was given"))?
+        }
+    };
     let mut stream = a.input.open()?;
     let mut out = open_output(a.out.as_deref(), a.force)?;
     let (counter, plan) = (&loaded.counter, &loaded.plan);

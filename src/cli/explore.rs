@@ -282,12 +282,13 @@ fn embedder_factory(a: &ExploreArgs, loaded: &super::Loaded) -> Result<EmbedderF
             Ok::<_, anyhow::Error>(e.clone())
         }));
     }
+    loaded.info.check_runnable()?;
     let info = loaded.info.clone();
     let dir = info.dir.clone();
     let base = EmbedOptions {
         pooling: None,
         normalize: None,
-        max_input_tokens: loaded.info.max_position_embeddings,
+        max_input_tokens: loaded.info.usable_positions(),
         max_batch_tokens: a.encoder.batch_tokens,
         threads: a.encoder.threads,
         precision: Default::default(), // each encoding sets its own

@@ -167,6 +167,42 @@ pub fn load_plan(args: &PlanArgs, fallback: impl FnOnce(&ModelInfo) -> Profile) 
     })
 }
 
+/// Plan with a bare tokenizer.json and a window the user gives (`--tokenizer FILE --window N`):
+/// the profile (or `fallback`) is resolved against the tokenizer's limits, its window set to N.
+/// Counting and cutting work; no vectors can be made.
+pub fn load_plan_tokenizer(
+    profile: Option<&Path>,
+    tokenizer: &Path,
+    window: usize,
+    fallback: impl FnOnce(&ModelInfo) -> Profile,
+) -> Result<Loaded> {
+    if window == 0 {
+        anyhow::bail!("--window must be a positive number of tokens");
+    }
+    let counter = TokenCounter::from_file(tokenizer)?;
+    let info = ModelInfo::tokenizer_only(tokenizer, &counter, window);
+    let mut profile = match profile {
+        Some(p) => Profile::load(p)?,
+        None => fallback(&info),
+    };
+    profile.cut.window = window;
+    let origin = profile_origin(profile.name.as_str(), tokenizer);
+    let plan = plan::resolve(&profile, &info, &counter, &origin)?;
+    Ok(Loaded {
+        info,
+        counter,
+        plan,
+    })
+}
+
+fn profile_origin(name: &str, tokenizer: &Path) -> String {
+    format!("plan {name} with tokenizer {}", tokenizer.display())
+}
+
+/// What a report says when only a tokenizer was given.
+pub const NO_VECTORS_NOTE: &str =
+    "tokenizer only: kerf can count and cut with it but cannot make vectors (no model to run)";
+
 /// The encoder for a resolved plan. Chunks always fit their window, so the encoder's own
 /// truncation is set to the position limit: vectors (and cache entries) are then shared by
 /// every plan whatever its window.
@@ -174,11 +210,12 @@ pub fn load_embedder(
     loaded: &Loaded,
     enc: &embed::EncoderArgs,
 ) -> Result<std::sync::Arc<dyn kerf::embed::Embedder>> {
+    loaded.info.check_runnable()?;
     let p = &loaded.plan.profile;
     let opts = kerf::embed::EmbedOptions {
         pooling: Some(p.pool.tokens),
         normalize: None,
-        max_input_tokens: loaded.info.max_position_embeddings,
+        max_input_tokens: loaded.info.usable_positions(),
         max_batch_tokens: enc.batch_tokens,
         threads: enc.threads,
         precision: p.pool.precision,

@@ -17,20 +17,53 @@ pub struct ModelArgs {
 
 /// Human lines describing a model's limits; shared with other reports.
 pub fn describe(info: &ModelInfo) -> Vec<String> {
+    let why = info.unsupported();
     let mut l = vec![
         format!("model folder       {}", info.dir.display()),
         format!(
-            "architecture       {} (model_type), vectors of {} dimensions",
+            "architecture       {} (config.json model_type), vectors of {} dimensions",
             info.model_type, info.hidden_size
         ),
+        if why.is_empty() {
+            "kerf can run it    yes".to_string()
+        } else {
+            format!("kerf can run it    no: {}", why.join("; "))
+        },
         format!(
-            "position limit     {} tokens (config.json max_position_embeddings)",
+            "position limit     {} positions (config.json max_position_embeddings)",
             info.max_position_embeddings
         ),
     ];
-    match info.configured_max_tokens {
-        Some(n) => l.push(format!("configured length  {n} tokens (sentence_bert_config.json max_seq_length): inputs past it are cut")),
-        None => l.push("configured length  none declared: the position limit applies".into()),
+    if info.position_offset() > 0 {
+        l.push(format!(
+            "usable positions   {} tokens: the {} family numbers positions from {} (pad_token_id {} + 1)",
+            info.usable_positions(),
+            info.model_type,
+            info.position_offset(),
+            info.position_offset() - 1
+        ));
+    } else {
+        l.push(format!(
+            "usable positions   {} tokens",
+            info.usable_positions()
+        ));
+    }
+    match (info.configured_max_tokens, info.configured_from) {
+        (Some(n), Some(from)) => {
+            let mut line = format!(
+                "configured length  {n} tokens ({}): inputs past it are cut",
+                from.name()
+            );
+            if n > info.usable_positions() {
+                line.push_str(&format!(
+                    "; more than the {} usable positions, so kerf plans with {}",
+                    info.usable_positions(),
+                    info.default_window()
+                ));
+            }
+            l.push(line);
+        }
+        _ => l.push("configured length  none declared: the usable positions apply".into()),
     }
     let d = &info.tokenizer_defaults;
     if d.truncation_tokens.is_some() || d.padding.is_some() {
@@ -50,16 +83,45 @@ pub fn describe(info: &ModelInfo) -> Vec<String> {
         "token pooling      {}{}",
         info.pooling
             .as_ref()
-            .map_or("not declared (mean assumed)".to_string(), |p| format!(
-                "{} (1_Pooling/config.json)",
-                p.mode
-            )),
+            .map_or("not declared (mean assumed)".to_string(), |p| {
+                let mut s = format!("{} ({})", p.modes.join(" + "), p.file);
+                if p.mode == "mean-sqrt-len" {
+                    s.push_str(
+                        ", run as mean: the two differ by one factor per vector, so cosines agree",
+                    );
+                }
+                s
+            }),
         if info.normalize {
             ", then L2-normalised (modules.json)"
         } else {
-            ""
+            ", not normalised (no Normalize in modules.json)"
         }
     ));
+    if info.prompts.is_empty() {
+        l.push("prompts            none declared".into());
+    } else {
+        for (i, (name, text)) in info.prompts.iter().enumerate() {
+            let mut line = format!(
+                "{}{name} = {text:?}",
+                if i == 0 {
+                    "prompts            "
+                } else {
+                    "                   "
+                }
+            );
+            if info.default_prompt_name.as_deref() == Some(name) {
+                line.push_str(" (default_prompt_name)");
+            }
+            if info.passage_prompt().map(|p| p.0) == Some(name.as_str()) {
+                line.push_str(
+                    " (kerf puts it before every chunk: `kerf profile new` makes it the prefix)",
+                );
+            }
+            l.push(line);
+        }
+        l.push("                   (config_sentence_transformers.json)".into());
+    }
     l.push(format!(
         "vocabulary         {} (config) / {} (tokenizer)",
         info.vocab_size, info.tokenizer_vocab_size

@@ -45,9 +45,11 @@ pub struct NewArgs {
     /// Minimum new tokens of a last chunk.
     #[arg(long, default_value_t = 0)]
     pub min_chunk: usize,
-    /// Prefix put before every chunk; it may name {title} and {section}.
-    #[arg(long, default_value = "")]
-    pub prefix: String,
+    /// Prefix put before every chunk; it may name {title} and {section} (default: the model's
+    /// passage or document prompt from config_sentence_transformers.json, if it declares one;
+    /// give "" for none).
+    #[arg(long)]
+    pub prefix: Option<String>,
     /// Tokens kept for a prefix that names {title} or {section} (default 32).
     #[arg(long)]
     pub prefix_limit: Option<usize>,
@@ -90,6 +92,25 @@ fn resolve_file(file: &Path) -> Result<(Profile, plan::ResolvedPlan)> {
     let (info, counter) = model::inspect(&p.model_dir())?;
     let r = plan::resolve(&p, &info, &counter, &file.display().to_string())?;
     Ok((p, r))
+}
+
+/// The model's passage prompt, offered as a new profile's prefix (announced on stderr). A model
+/// folder that cannot be read offers none: `profile new` does not need a model.
+fn model_prompt(model_dir: Option<&Path>) -> String {
+    let dir = model_dir.map_or_else(model::default_model_dir, Path::to_path_buf);
+    let Ok((info, _)) = model::inspect(&dir) else {
+        return String::new();
+    };
+    match info.passage_prompt() {
+        Some((name, text)) => {
+            eprintln!(
+                "kerf: prefix {text:?}: the model's {name:?} prompt (config_sentence_transformers.json in {}), counted in the window; --prefix \"\" for none",
+                dir.display()
+            );
+            text.to_string()
+        }
+        None => String::new(),
+    }
 }
 
 pub fn run(c: ProfileCmd) -> Result<()> {
@@ -145,6 +166,10 @@ pub fn run(c: ProfileCmd) -> Result<()> {
             }
         }
         ProfileCmd::New(a) => {
+            let prefix = match a.prefix {
+                Some(p) => p,
+                None => model_prompt(a.model.as_deref()),
+            };
             let p = Profile {
                 name: a.name,
                 model: kerf::profile::ModelSection { folder: a.model },
@@ -153,7 +178,7 @@ pub fn run(c: ProfileCmd) -> Result<()> {
                     boundary: a.boundary,
                     overlap: a.overlap,
                     min_chunk: a.min_chunk,
-                    prefix: a.prefix,
+                    prefix,
                     prefix_limit: a.prefix_limit,
                     heading_breaks: a.heading_breaks,
                 },

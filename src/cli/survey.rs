@@ -1,5 +1,6 @@
 //! `kerf survey`: the census of a corpus against the window.
 use std::io::Write;
+use std::path::PathBuf;
 
 use anyhow::Result;
 use clap::{Args, ValueEnum};
@@ -7,7 +8,7 @@ use clap::{Args, ValueEnum};
 use kerf::profile::{Boundary, Profile};
 use kerf::survey::{self, CorpusStats, DocStats};
 
-use super::{load_plan, report_notices, InputArgs, PlanArgs};
+use super::{load_plan, load_plan_tokenizer, report_notices, InputArgs, PlanArgs, NO_VECTORS_NOTE};
 
 #[derive(Clone, Copy, ValueEnum)]
 pub enum Order {
@@ -34,6 +35,10 @@ pub struct SurveyArgs {
     /// Window in tokens when no profile is given (default: the model's configured length).
     #[arg(long)]
     pub window: Option<usize>,
+    /// Count with this tokenizer.json instead of a model folder's (needs --window): plan for a
+    /// model kerf cannot run, or before choosing one. No vectors can be made with it.
+    #[arg(long, value_name = "FILE", requires = "window", conflicts_with_all = ["model", "profile"])]
+    pub tokenizer: Option<PathBuf>,
     /// Row order of the document table.
     #[arg(long, value_enum, default_value = "input")]
     pub order: Order,
@@ -228,18 +233,27 @@ fn write_human(
 
 pub fn run(a: SurveyArgs) -> Result<()> {
     let window = a.window;
-    let loaded = load_plan(&a.plan, |info| {
+    if a.plan.profile.is_some() && window.is_some() {
+        anyhow::bail!("give either --profile or --window, not both");
+    }
+    let fallback = |info: &kerf::model::ModelInfo| {
         let mut p = Profile {
             name: "survey".into(),
             ..Default::default()
         };
         p.cut.window = window.unwrap_or_else(|| info.default_window());
         p.cut.boundary = Boundary::Sentence;
+        // The model's passage prompt goes before every input, so it is counted in the window.
+        if let Some((_, prompt)) = info.passage_prompt() {
+            p.cut.prefix = prompt.to_string();
+        }
         p
-    })?;
-    if a.plan.profile.is_some() && window.is_some() {
-        anyhow::bail!("give either --profile or --window, not both");
-    }
+    };
+    let loaded = match (&a.tokenizer, window) {
+        (Some(t), Some(w)) => load_plan_tokenizer(None, t, w, fallback)?,
+        _ => load_plan(&a.plan, fallback)?,
+    };
+    let tokenizer_only = a.tokenizer.is_some();
     let mut stream = a.input.open()?;
     let mut docs: Vec<DocStats> = Vec::new();
     let (counter, plan) = (&loaded.counter, &loaded.plan);
@@ -268,6 +282,8 @@ pub fn run(a: SurveyArgs) -> Result<()> {
             "budget": plan.budget(),
             "specials": plan.specials,
             "prefix_tokens": plan.prefix_tokens,
+            "prefix": plan.profile.cut.prefix,
+            "vectors_possible": loaded.info.unsupported().is_empty(),
             "corpus": stats,
             "documents": docs,
             "notices": stream.notices,
@@ -283,16 +299,38 @@ pub fn run(a: SurveyArgs) -> Result<()> {
         if let Some(n) = a.top {
             shown.truncate(n);
         }
-        let header = format!(
-            "survey of {} documents · model {} · window {} tokens ({} for text after {} special{}) · position limit {}",
-            stats.documents,
-            loaded.info.dir.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default(),
-            plan.window,
-            plan.budget(),
-            plan.specials + plan.prefix_tokens,
-            if plan.prefix_tokens > 0 { " and prefix tokens" } else { " tokens" },
-            loaded.info.max_position_embeddings
-        );
+        let name = loaded
+            .info
+            .dir
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        let mut header = if tokenizer_only {
+            format!(
+                "survey of {} documents · tokenizer {} · window {} tokens ({} for text after {} tokens of specials, prefix and start reserve)\n{NO_VECTORS_NOTE}",
+                stats.documents,
+                loaded.info.dir.display(),
+                plan.window,
+                plan.budget(),
+                plan.window - plan.budget(),
+            )
+        } else {
+            format!(
+                "survey of {} documents · model {name} · window {} tokens ({} for text after {} special{}) · position limit {}",
+                stats.documents,
+                plan.window,
+                plan.budget(),
+                plan.window - plan.budget(),
+                if plan.prefix_tokens > 0 { " and prefix tokens" } else { " tokens" },
+                loaded.info.usable_positions()
+            )
+        };
+        if plan.prefix_tokens > 0 && a.plan.profile.is_none() {
+            header.push_str(&format!(
+                "\nprefix {:?} (the model's passage prompt) takes {} tokens of every window",
+                plan.profile.cut.prefix, plan.prefix_tokens
+            ));
+        }
         write_human(&mut out, &stats, &shown, &docs, plan.budget(), &header)?;
     }
     out.flush()?;

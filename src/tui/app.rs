@@ -600,7 +600,7 @@ impl App {
 
     fn change_window(&mut self, up: bool) {
         let mut p = self.current.plan.profile.clone();
-        let limit = self.info.max_position_embeddings;
+        let limit = self.info.usable_positions();
         let steps: Vec<usize> = WINDOW_STEPS
             .iter()
             .copied()
@@ -642,7 +642,7 @@ impl App {
 
     fn change_context(&mut self, up: bool) {
         let mut p = self.current.plan.profile.clone();
-        let limit = self.info.max_position_embeddings;
+        let limit = self.info.usable_positions();
         let window = p.cut.window;
         let steps: Vec<usize> = CONTEXT_STEPS
             .iter()

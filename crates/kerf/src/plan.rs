@@ -99,20 +99,20 @@ pub fn resolve(
         })
     };
     let c = &profile.cut;
-    if c.window > info.max_position_embeddings {
+    if c.window > info.usable_positions() {
         return err(format!(
-            "[cut] window {} exceeds the model's limit of {} positions (config.json max_position_embeddings in {})",
+            "[cut] window {} exceeds the model's limit of {} positions ({})",
             c.window,
-            info.max_position_embeddings,
-            info.dir.display()
+            info.usable_positions(),
+            info.limit_origin()
         ));
     }
     let context = profile.pool.context;
-    if context > info.max_position_embeddings {
+    if context > info.usable_positions() {
         return err(format!(
-            "[pool] context {context} exceeds the model's limit of {} positions (config.json max_position_embeddings in {})",
-            info.max_position_embeddings,
-            info.dir.display()
+            "[pool] context {context} exceeds the model's limit of {} positions ({})",
+            info.usable_positions(),
+            info.limit_origin()
         ));
     }
     let template = match Template::parse(&c.prefix) {
@@ -147,7 +147,8 @@ pub fn resolve(
         }
     }
     let specials = counter.specials_per_input();
-    let fixed = specials + prefix_tokens;
+    // A tokenizer that marks an input's first word may add a token to a chunk's start.
+    let fixed = specials + prefix_tokens + counter.start_slack_tokens();
     if c.window <= fixed {
         return err(format!(
             "[cut] window {} leaves no room for text: {specials} special tokens and {prefix_tokens} prefix tokens take {fixed}",

@@ -58,7 +58,12 @@ struct Unit {
 }
 
 /// Partition tokens among byte ranges (ascending, non-overlapping): range i takes the tokens
-/// starting before range i+1 starts. Every token lands in exactly one range.
+/// that end by the time range i+1 starts. Every token lands in exactly one range.
+///
+/// A token that straddles the start of the next range goes with the next range: a byte-level
+/// token such as `ĠPackages` covers the space before a sentence's first word (see
+/// `tokens::keep_leading_spaces`) and belongs to that sentence. WordPiece tokens never straddle
+/// a sentence or paragraph start, so for them this is the same as "starting before".
 pub fn token_ranges_of(tokens: &Tokenized, ranges: &[Range<usize>]) -> Vec<Range<usize>> {
     let mut out = Vec::with_capacity(ranges.len());
     let mut t = 0;
@@ -66,7 +71,10 @@ pub fn token_ranges_of(tokens: &Tokenized, ranges: &[Range<usize>]) -> Vec<Range
         let start = t;
         match ranges.get(i + 1) {
             Some(next) => {
-                while t < tokens.len() && tokens.offsets[t].start < next.start {
+                while t < tokens.len()
+                    && tokens.offsets[t].start < next.start
+                    && tokens.offsets[t].end <= next.start
+                {
                     t += 1;
                 }
             }

@@ -8,6 +8,7 @@ use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
 use tokenizers::models::ModelWrapper;
+use tokenizers::processors::PostProcessorWrapper;
 use tokenizers::Tokenizer;
 
 /// Errors from loading or running a tokenizer.
@@ -102,10 +103,73 @@ impl Tokenized {
     }
 }
 
+/// Whether a tokenizer.json normalizer or pre-tokenizer (walked through sequences) puts a space
+/// marker before an input's first word.
+fn prepends_space(v: &serde_json::Value) -> bool {
+    match v["type"].as_str() {
+        Some("Metaspace") => {
+            v["prepend_scheme"].as_str().is_none_or(|p| p != "never")
+                && v["add_prefix_space"].as_bool() != Some(false)
+        }
+        Some("ByteLevel") => v["add_prefix_space"].as_bool() == Some(true),
+        Some("Prepend") => true,
+        Some("Sequence") => ["pretokenizers", "normalizers"].iter().any(|k| {
+            v[*k]
+                .as_array()
+                .is_some_and(|items| items.iter().any(prepends_space))
+        }),
+        _ => false,
+    }
+}
+
+/// Whether a pre-tokenizer cuts words apart at whitespace and keeps no space with them
+/// (BERT's, Whitespace, WhitespaceSplit): then text joined at a word start (a prefix and a
+/// chunk) encodes to the sum of its parts.
+fn splits_apart(v: &serde_json::Value) -> bool {
+    match v["type"].as_str() {
+        Some("BertPreTokenizer" | "Whitespace" | "WhitespaceSplit") => true,
+        Some("Sequence") => v["pretokenizers"]
+            .as_array()
+            .is_some_and(|items| items.iter().any(splits_apart)),
+        _ => false,
+    }
+}
+
+/// Turn off offset trimming in byte-level post-processors (RoBERTa-style tokenizers), so a
+/// token's byte range includes the space the token carries (`Ġword` covers " word").
+///
+/// A chunk then starts at that space, and encoded on its own it gives the same `Ġword` token it
+/// had inside the document. With trimmed offsets the chunk would start at "word", which a
+/// byte-level BPE encodes without the space, often to more tokens, and the window could be
+/// overrun. Returns whether anything changed.
+fn keep_leading_spaces(pp: &mut PostProcessorWrapper) -> bool {
+    match pp {
+        PostProcessorWrapper::Roberta(r) if r.trim_offsets => {
+            r.trim_offsets = false;
+            true
+        }
+        PostProcessorWrapper::ByteLevel(b) if b.trim_offsets => {
+            b.trim_offsets = false;
+            true
+        }
+        PostProcessorWrapper::Sequence(seq) => {
+            let mut changed = false;
+            let mut i = 0;
+            while let Some(p) = seq.get_mut(i) {
+                changed |= keep_leading_spaces(p);
+                i += 1;
+            }
+            changed
+        }
+        _ => false,
+    }
+}
+
 /// A tokenizer with truncation and padding off, plus the facts needed to budget a window.
 pub struct TokenCounter {
     tokenizer: Tokenizer,
     specials_per_input: usize,
+    start_slack_tokens: usize,
     defaults: TokenizerDefaults,
     path: PathBuf,
     piece_floor: OnceLock<usize>,
@@ -131,11 +195,27 @@ impl TokenCounter {
             .with_truncation(None)
             .map_err(|e| load_err(e.to_string()))?;
         tokenizer.with_padding(None);
+        if let Some(mut pp) = tokenizer.get_post_processor().cloned() {
+            if keep_leading_spaces(&mut pp) {
+                tokenizer.with_post_processor(Some(pp));
+            }
+        }
         let empty = tokenizer
             .encode("", true)
             .map_err(|e| load_err(format!("encoding an empty input failed: {e}")))?;
+        let start_slack_tokens = std::fs::read_to_string(path)
+            .ok()
+            .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
+            .map_or(1, |v| {
+                usize::from(
+                    prepends_space(&v["normalizer"])
+                        || prepends_space(&v["pre_tokenizer"])
+                        || !splits_apart(&v["pre_tokenizer"]),
+                )
+            });
         Ok(Self {
             specials_per_input: empty.len(),
+            start_slack_tokens,
             tokenizer,
             defaults,
             path: path.to_path_buf(),
@@ -146,6 +226,20 @@ impl TokenCounter {
     /// Special tokens the post-processor adds to each input (`[CLS]` and `[SEP]` for BERT).
     pub fn specials_per_input(&self) -> usize {
         self.specials_per_input
+    }
+
+    /// Tokens a chunk may gain at its start when encoded on its own: 1 when the tokenizer puts
+    /// a space marker before an input's first word (Metaspace with a prepend scheme, byte-level
+    /// with `add_prefix_space`, a Prepend normalizer), which a word after a line break inside
+    /// the document did not have, or when its pre-tokenizer keeps spaces with words (byte-level
+    /// BPE: a prefix ending in a space merges with the chunk's first word); 0 for BERT-style
+    /// pre-tokenizers. [`crate::plan::resolve`] keeps it out of the budget.
+    ///
+    /// Measured, not proven: on the Debian FAQ, byte-level BPE and Unigram (Metaspace, prepend
+    /// "always") chunks re-encoded to at most one token more than their in-document count
+    /// (tests/cli_model.rs, tests/split_other_tokenizers.rs).
+    pub fn start_slack_tokens(&self) -> usize {
+        self.start_slack_tokens
     }
 
     /// Truncation and padding the file asked for (now disabled).

@@ -588,10 +588,7 @@ impl Handout {
                 m.configured_max_tokens
                     .map_or("not stated".into(), |t| format!("{t} tokens")),
             ),
-            (
-                "position limit",
-                format!("{} tokens", m.max_position_embeddings),
-            ),
+            ("position limit", format!("{} tokens", m.usable_positions())),
             (
                 "window an encoder applies by default",
                 format!("{} tokens", m.default_window()),
