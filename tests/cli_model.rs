@@ -257,7 +257,9 @@ fn survey_with_a_bare_tokenizer_says_no_vectors() {
     let out = ok(&kerf(&args));
     assert!(out.contains("cannot make vectors"), "{out}");
     assert!(
-        out.contains("window 128 tokens (125 for text after 3 tokens of specials, prefix and start reserve)"),
+        out.contains(
+            "window 128 tokens (125 for text after 3 tokens of specials, prefix and start reserve)"
+        ),
         "{out}"
     );
     let mut json_args = args.to_vec();

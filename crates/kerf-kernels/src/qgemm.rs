@@ -236,25 +236,51 @@ pub type Outliers = [(u32, f32); ROW_OUTLIERS];
 
 /// The [`ROW_OUTLIERS`] entries of `row` of largest magnitude (the first such on ties), and
 /// `row` with them set to zero in `rest` (which it is copied into).
+///
+/// Two passes, the first vectorised: the largest magnitude in each of eight lanes, whose
+/// `ROW_OUTLIERS`-th largest is a floor every outlier reaches (that many lanes hold an entry at
+/// or above it); then only runs of eight holding an entry at the floor or above are looked at.
 #[inline(always)]
 pub fn split_row(row: &[f32], rest: &mut Vec<f32>) -> Outliers {
+    let mut lanes = [0f32; 8];
+    for c in row.chunks_exact(8) {
+        for l in 0..8 {
+            let a = c[l].abs();
+            lanes[l] = if a > lanes[l] { a } else { lanes[l] };
+        }
+    }
+    lanes.sort_unstable_by(|x, y| y.total_cmp(x));
+    let floor = if ROW_OUTLIERS <= 8 && row.len() >= 8 {
+        lanes[ROW_OUTLIERS - 1]
+    } else {
+        0.0
+    };
     let mut top: Outliers = [(0, 0.0); ROW_OUTLIERS];
     let mut count = 0;
-    for (i, &v) in row.iter().enumerate() {
-        let a = v.abs();
-        if count < ROW_OUTLIERS {
-            top[count] = (i as u32, v);
-            count += 1;
-        } else if a > top[ROW_OUTLIERS - 1].1.abs() {
-            top[ROW_OUTLIERS - 1] = (i as u32, v);
-        } else {
+    for (r, c) in row.chunks(8).enumerate() {
+        if !c.iter().fold(false, |hit, v| hit | (v.abs() >= floor)) {
             continue;
         }
-        // Keep `top[..count]` sorted by magnitude, largest first.
-        let mut j = count - 1;
-        while j > 0 && top[j].1.abs() > top[j - 1].1.abs() {
-            top.swap(j, j - 1);
-            j -= 1;
+        for (l, &v) in c.iter().enumerate() {
+            let a = v.abs();
+            if a < floor {
+                continue;
+            }
+            let i = (r * 8 + l) as u32;
+            if count < ROW_OUTLIERS {
+                top[count] = (i, v);
+                count += 1;
+            } else if a > top[ROW_OUTLIERS - 1].1.abs() {
+                top[ROW_OUTLIERS - 1] = (i, v);
+            } else {
+                continue;
+            }
+            // Keep `top[..count]` sorted by magnitude, largest first.
+            let mut j = count - 1;
+            while j > 0 && top[j].1.abs() > top[j - 1].1.abs() {
+                top.swap(j, j - 1);
+                j -= 1;
+            }
         }
     }
     rest.clear();
@@ -463,6 +489,36 @@ mod tests {
             }
         }
         out
+    }
+
+    #[test]
+    fn split_row_takes_the_largest_magnitudes_first_on_ties() {
+        // Against a plain sort by magnitude (stable, so the first of equal entries wins).
+        for (len, seed) in [
+            (1, 1),
+            (3, 2),
+            (8, 3),
+            (13, 4),
+            (384, 5),
+            (1536, 6),
+            (40, 7),
+        ] {
+            let mut row = data(len, seed);
+            if len == 40 {
+                row.iter_mut().for_each(|v| *v = (*v * 2.0).round()); // many ties
+            }
+            let mut order: Vec<usize> = (0..len).collect();
+            order.sort_by(|&a, &b| row[b].abs().total_cmp(&row[a].abs()));
+            let mut rest = Vec::new();
+            let got = split_row(&row, &mut rest);
+            let n = ROW_OUTLIERS.min(len);
+            let want: Vec<(u32, f32)> = order[..n].iter().map(|&i| (i as u32, row[i])).collect();
+            assert_eq!(&got[..n], &want[..], "len {len}");
+            for (i, v) in rest.iter().enumerate() {
+                let taken = want.iter().any(|w| w.0 as usize == i);
+                assert_eq!(*v, if taken { 0.0 } else { row[i] }, "len {len} entry {i}");
+            }
+        }
     }
 
     #[test]
