@@ -9,8 +9,8 @@ mod common;
 use std::sync::OnceLock;
 
 use kerf::model;
-use kerf::plan::{self, ResolvedPlan};
-use kerf::profile::{Boundary, Profile};
+use kerf::plan::ResolvedPlan;
+use kerf::profile::Boundary;
 use kerf::segment::{self, Language};
 use kerf::split;
 use kerf::survey;
@@ -44,16 +44,7 @@ fn paragraphs() -> &'static Vec<Vec<String>> {
 }
 
 fn resolved(boundary: Boundary, window: usize, overlap: usize) -> ResolvedPlan {
-    let (info, c) = model::inspect(&common::model_dir()).unwrap();
-    let mut p = Profile::default();
-    p.cut.window = window;
-    p.cut.boundary = boundary;
-    p.cut.overlap = if boundary == Boundary::Head {
-        0
-    } else {
-        overlap
-    };
-    plan::resolve(&p, &info, &c, "multilingual").unwrap()
+    common::fit::plan_for(boundary, window, overlap, 0, "")
 }
 
 /// A document of 1 to 11 fixture paragraphs from any of the languages, joined by a blank line

@@ -21,26 +21,7 @@ fn counter() -> &'static TokenCounter {
     C.get_or_init(|| model::inspect(&common::model_dir()).expect("model loads").1)
 }
 
-fn resolved(
-    boundary: Boundary,
-    window: usize,
-    overlap: usize,
-    min_chunk: usize,
-    prefix: &str,
-) -> ResolvedPlan {
-    let (info, c) = model::inspect(&common::model_dir()).unwrap();
-    let mut p = Profile::default();
-    p.cut.window = window;
-    p.cut.boundary = boundary;
-    p.cut.overlap = if boundary == Boundary::Head {
-        0
-    } else {
-        overlap
-    };
-    p.cut.min_chunk = min_chunk;
-    p.cut.prefix = prefix.to_string();
-    plan::resolve(&p, &info, &c, "prop").unwrap()
-}
+use common::fit::plan_for as resolved;
 
 const PIECES: &[&str] = &[
     "the",

@@ -3,8 +3,8 @@
 //! prefix), fits the window; the reported token count is exactly what re-encoding gives; chunks
 //! cover the document in order with no gap; overlap is the shared token run, never more than
 //! asked.
-use kerf::plan::ResolvedPlan;
-use kerf::profile::Boundary;
+use kerf::plan::{self, ResolvedPlan};
+use kerf::profile::{Boundary, Profile};
 use kerf::split::Chunk;
 use kerf::tokens::TokenCounter;
 use proptest::prelude::*;
@@ -78,4 +78,27 @@ pub fn check(
         prop_assert!(chunks.is_empty());
     }
     Ok(())
+}
+
+/// A plan for the default model: `window` tokens cut at `boundary` with `overlap` (none for
+/// `head`), `min_chunk` and `prefix`.
+pub fn plan_for(
+    boundary: Boundary,
+    window: usize,
+    overlap: usize,
+    min_chunk: usize,
+    prefix: &str,
+) -> ResolvedPlan {
+    let (info, c) = kerf::model::inspect(&super::model_dir()).unwrap();
+    let mut p = Profile::default();
+    p.cut.window = window;
+    p.cut.boundary = boundary;
+    p.cut.overlap = if boundary == Boundary::Head {
+        0
+    } else {
+        overlap
+    };
+    p.cut.min_chunk = min_chunk;
+    p.cut.prefix = prefix.to_string();
+    plan::resolve(&p, &info, &c, "prop").unwrap()
 }
