@@ -130,43 +130,39 @@ impl Template {
 
     /// The prefix for a title and a section path (see the module's rendering rules).
     pub fn render(&self, title: &str, section: &[String]) -> String {
-        let value = |f: &Field| match f {
-            Field::Title => title.to_string(),
-            Field::Section => section.join(SECTION_JOIN),
-        };
+        let section = section.join(SECTION_JOIN);
+        fn text_of<'a>(p: &'a Part, title: &'a str, section: &'a str) -> &'a str {
+            match p {
+                Part::Text(t) => t,
+                Part::Field(Field::Title) => title,
+                Part::Field(Field::Section) => section,
+            }
+        }
+        let value = |p| text_of(p, title, &section);
         let fields: Vec<usize> = (0..self.parts.len())
             .filter(|&i| matches!(self.parts[i], Part::Field(_)))
             .collect();
-        let (Some(&first), Some(&last)) = (fields.first(), fields.last()) else {
-            return self.fixed().unwrap_or_default();
-        };
+        // An empty field takes the separator before it (between it and the previous field),
+        // else, as the first field, the one after it (between it and the next).
         let mut dropped = vec![false; self.parts.len()];
         for (k, &i) in fields.iter().enumerate() {
-            let Part::Field(f) = &self.parts[i] else {
-                continue;
-            };
-            if !value(f).is_empty() {
+            if !value(&self.parts[i]).is_empty() {
                 continue;
             }
-            // The separator before the field (between it and the previous field), else the one
-            // after it (between it and the next field).
-            if k > 0 && i > first && matches!(self.parts[i - 1], Part::Text(_)) {
+            if k > 0 && matches!(self.parts[i - 1], Part::Text(_)) {
                 dropped[i - 1] = true;
             } else if k + 1 < fields.len() && matches!(self.parts[i + 1], Part::Text(_)) {
                 dropped[i + 1] = true;
             }
         }
-        let mut out = String::new();
-        for (i, p) in self.parts.iter().enumerate() {
-            if dropped[i] && i > first && i < last {
-                continue;
-            }
-            match p {
-                Part::Text(t) => out.push_str(t),
-                Part::Field(f) => out.push_str(&value(f)),
-            }
-        }
-        if !out.is_empty() && !out.ends_with(char::is_whitespace) {
+        let mut out: String = self
+            .parts
+            .iter()
+            .zip(&dropped)
+            .filter(|(_, &d)| !d)
+            .map(|(p, _)| value(p))
+            .collect();
+        if !fields.is_empty() && !out.is_empty() && !out.ends_with(char::is_whitespace) {
             out.push(' ');
         }
         out
@@ -242,37 +238,31 @@ pub fn fitted(
         let tokens = if text.is_empty() { 0 } else { count(&text) };
         (tokens <= room).then_some(ChunkPrefix { text, tokens })
     };
-    if let Some(p) = try_one(title, section) {
-        return p;
-    }
-    let uses_section = template.names(Field::Section);
-    if uses_section {
-        for k in 1..section.len() {
-            if let Some(p) = try_one(title, &section[k..]) {
-                return p;
-            }
-        }
-    }
-    let inner: Vec<String> = section.last().cloned().into_iter().collect();
-    let inner = if uses_section { inner } else { Vec::new() };
-    if let Some(p) = try_one("", &inner) {
-        return p;
-    }
+    // Candidates in the order the module's doc gives, the first that fits taken.
+    let inner: &[String] = match section.last() {
+        Some(last) if template.names(Field::Section) => std::slice::from_ref(last),
+        _ => &[],
+    };
+    let mut candidates: Vec<(&str, Vec<String>)> = (0..section.len().max(1))
+        .map(|k| (title, section[k.min(section.len())..].to_vec()))
+        .collect();
+    candidates.push(("", inner.to_vec()));
     if let Some(last) = inner.first() {
         let words: Vec<&str> = last.split_whitespace().collect();
-        for n in (1..words.len()).rev() {
-            if let Some(p) = try_one("", &[words[..n].join(" ")]) {
-                return p;
-            }
-        }
-        if let Some(p) = try_one("", &[]) {
-            return p;
-        }
+        candidates.extend(
+            (1..words.len())
+                .rev()
+                .map(|n| ("", vec![words[..n].join(" ")])),
+        );
+        candidates.push(("", Vec::new()));
     }
-    ChunkPrefix {
-        text: String::new(),
-        tokens: 0,
-    }
+    candidates
+        .into_iter()
+        .find_map(|(t, s)| try_one(t, &s))
+        .unwrap_or(ChunkPrefix {
+            text: String::new(),
+            tokens: 0,
+        })
 }
 
 /// The prefixes of a document's chunks, one per chunk start (`starts`, byte offsets), rendered
