@@ -464,7 +464,7 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
         title.push(Span::styled(
             format!(
                 " · {} tokens, {} overlap · lines {}-{}",
-                app.current.plan.input_tokens(c.content_tokens),
+                app.current.plan.chunk_input_tokens(c),
                 c.overlap_tokens,
                 kerf::segment::line_of(&d.text, c.byte_range.start),
                 kerf::segment::line_of(&d.text, c.byte_range.end.saturating_sub(1))
@@ -505,10 +505,7 @@ fn board(app: &App, area: Rect, buf: &mut Buffer) {
                 Color::Cyan
             });
             (
-                format!(
-                    "#{k} {}t{more}",
-                    app.current.plan.input_tokens(c.content_tokens)
-                ),
+                format!("#{k} {}t{more}", app.current.plan.chunk_input_tokens(c)),
                 st,
             )
         } else if unseen {

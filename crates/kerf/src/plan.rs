@@ -49,11 +49,6 @@ impl ResolvedPlan {
     pub fn budget(&self) -> usize {
         self.cut.budget_tokens
     }
-    /// Tokens one encoder input of a chunk costs, specials and prefix included (a template's
-    /// whole room: [`ResolvedPlan::chunk_input_tokens`] counts a chunk's own prefix).
-    pub fn input_tokens(&self, content_tokens: usize) -> usize {
-        content_tokens + self.specials + self.prefix_tokens
-    }
     /// Whether the prefix names a field, so each chunk carries its own.
     pub fn templated(&self) -> bool {
         self.prefix.fixed().is_none()
