@@ -8,6 +8,8 @@
 //! Besides throughput it prints the floating-point work done (matrix products and attention,
 //! counted from the model's sizes and each input's length), so the caller can compare the rate
 //! with the machine's measured matrix-product peak.
+#[path = "common/texts.rs"]
+mod texts;
 use std::time::Instant;
 
 use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, Engine, Precision};
@@ -30,14 +32,7 @@ fn main() -> anyhow::Result<()> {
         Some("int8") => Precision::Int8,
         Some(other) => anyhow::bail!("unknown precision {other}"),
     };
-    let texts: Vec<String> = std::fs::read_to_string(path)?
-        .lines()
-        .filter(|l| !l.trim().is_empty())
-        .map(|l| {
-            serde_json::from_str::<serde_json::Value>(l)
-                .map(|v| v["text"].as_str().unwrap_or_default().to_string())
-        })
-        .collect::<Result<_, _>>()?;
+    let texts = texts::read(path)?;
     let e = BertEmbedder::load(
         &kerf::model::default_model_dir(),
         &EmbedOptions {

@@ -4,6 +4,8 @@
 //! tokens), and to choose the int8 product's settings.
 //!
 //! Usage: cargo run --release --example int8_accuracy -- TEXTS.jsonl [MAX_INPUT_TOKENS]
+#[path = "common/texts.rs"]
+mod texts;
 use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, Precision};
 use kerf::pool::cosine;
 
@@ -13,14 +15,7 @@ fn main() -> anyhow::Result<()> {
         .get(1)
         .ok_or_else(|| anyhow::anyhow!("usage: int8_accuracy TEXTS.jsonl [MAX_INPUT_TOKENS]"))?;
     let max_input_tokens: usize = args.get(2).map_or(Ok(256), |t| t.parse())?;
-    let texts: Vec<String> = std::fs::read_to_string(path)?
-        .lines()
-        .filter(|l| !l.trim().is_empty())
-        .map(|l| {
-            serde_json::from_str::<serde_json::Value>(l)
-                .map(|v| v["text"].as_str().unwrap_or_default().to_string())
-        })
-        .collect::<Result<_, _>>()?;
+    let texts = texts::read(path)?;
     let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
     let embed = |precision| -> anyhow::Result<Vec<Vec<f32>>> {
         let e = BertEmbedder::load(
