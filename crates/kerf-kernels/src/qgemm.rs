@@ -220,7 +220,7 @@ struct Scratch {
     codes: Vec<u8>,
     affine: Vec<(f32, f32)>,
     outliers: Vec<Outliers>,
-    row: Vec<f32>,
+    blocks: Vec<[f32; 8]>,
 }
 
 /// Entries of each activation row kept out of its 8-bit codes and multiplied in f32: the ones
@@ -291,6 +291,155 @@ pub fn split_row(row: &[f32], rest: &mut Vec<f32>) -> Outliers {
     top
 }
 
+/// [`split_row`] and then [`quantise_row`] of what it leaves, in two passes over the row instead
+/// of five, with the same results bit for bit (tested against the two): the outliers, the
+/// codes of the row with them set to zero (written to `codes`, zero past the row), and
+/// `(lo, step)`.
+///
+/// - The first pass keeps, in each of eight lanes, the largest magnitude (the outlier floor,
+///   as in [`split_row`]), the two largest and the two smallest values, and the largest
+///   magnitude of each lane in every run of 64 entries (in `blocks`), so the outlier scan
+///   looks only at runs of 64 that reach the floor instead of checking every run of eight.
+/// - The range without the outliers comes from the lanes: a lane that gave one outlier gives
+///   its second value instead of its first where the outlier was its first; a lane that gave
+///   more (rare) is scanned again, one entry in eight. The zero left where an outlier was is in
+///   the range, as it is in the zeroed copy.
+/// - The second pass writes the codes from the row itself; the outliers' places then get the
+///   code of zero. No copy of the row is made.
+#[inline(always)]
+pub fn split_quantise_row(
+    row: &[f32],
+    codes: &mut [u8],
+    blocks: &mut Vec<[f32; 8]>,
+) -> (Outliers, f32, f32) {
+    const RUN: usize = 64;
+    let body = row.len() / 8 * 8;
+    let mut lanes = [0f32; 8];
+    let (mut hi1, mut hi2) = ([f32::NEG_INFINITY; 8], [f32::NEG_INFINITY; 8]);
+    let (mut lo1, mut lo2) = ([f32::INFINITY; 8], [f32::INFINITY; 8]);
+    blocks.clear();
+    for run in row[..body].chunks(RUN) {
+        let mut top = [0f32; 8];
+        for c in run.chunks_exact(8) {
+            for l in 0..8 {
+                let (x, a) = (c[l], c[l].abs());
+                top[l] = if a > top[l] { a } else { top[l] };
+                // Two largest and two smallest as a multiset: a value equal to the first
+                // becomes the second too.
+                let below = if x < hi1[l] { x } else { hi1[l] };
+                hi2[l] = if below > hi2[l] { below } else { hi2[l] };
+                hi1[l] = if x > hi1[l] { x } else { hi1[l] };
+                let above = if x > lo1[l] { x } else { lo1[l] };
+                lo2[l] = if above < lo2[l] { above } else { lo2[l] };
+                lo1[l] = if x < lo1[l] { x } else { lo1[l] };
+            }
+        }
+        for l in 0..8 {
+            lanes[l] = if top[l] > lanes[l] { top[l] } else { lanes[l] };
+        }
+        blocks.push(top);
+    }
+    lanes.sort_unstable_by(|x, y| y.total_cmp(x));
+    let floor = if ROW_OUTLIERS <= 8 && row.len() >= 8 {
+        lanes[ROW_OUTLIERS - 1]
+    } else {
+        0.0
+    };
+    let mut top: Outliers = [(0, 0.0); ROW_OUTLIERS];
+    let mut count = 0;
+    // The runs of eight that split_row inspects, in the same order: those of a run of 64 that
+    // reaches the floor, then the ragged end.
+    let mut inspect = |first: usize, c: &[f32]| {
+        if !c.iter().fold(false, |hit, v| hit | (v.abs() >= floor)) {
+            return;
+        }
+        for (l, &v) in c.iter().enumerate() {
+            let a = v.abs();
+            if a < floor {
+                continue;
+            }
+            let i = (first + l) as u32;
+            if count < ROW_OUTLIERS {
+                top[count] = (i, v);
+                count += 1;
+            } else if a > top[ROW_OUTLIERS - 1].1.abs() {
+                top[ROW_OUTLIERS - 1] = (i, v);
+            } else {
+                continue;
+            }
+            let mut j = count - 1;
+            while j > 0 && top[j].1.abs() > top[j - 1].1.abs() {
+                top.swap(j, j - 1);
+                j -= 1;
+            }
+        }
+    };
+    for (b, run_top) in blocks.iter().enumerate() {
+        if !run_top.iter().any(|&m| m >= floor) {
+            continue;
+        }
+        let start = b * RUN;
+        let end = (start + RUN).min(body);
+        for (r, c) in row[start..end].chunks_exact(8).enumerate() {
+            inspect(start + r * 8, c);
+        }
+    }
+    if body < row.len() {
+        inspect(body, &row[body..]);
+    }
+    let taken = &top[..count];
+    // The range of the row without its outliers, with the zero each leaves.
+    let (mut lo, mut hi) = if count > 0 {
+        (0f32, 0f32)
+    } else {
+        (f32::INFINITY, f32::NEG_INFINITY)
+    };
+    for l in 0..8 {
+        let mut in_lane = taken
+            .iter()
+            .filter(|&&(i, _)| (i as usize) < body && i as usize % 8 == l);
+        let (lane_lo, lane_hi) = match (in_lane.next(), in_lane.next()) {
+            (None, _) => (lo1[l], hi1[l]),
+            (Some(&(_, v)), None) => (
+                if v == lo1[l] { lo2[l] } else { lo1[l] },
+                if v == hi1[l] { hi2[l] } else { hi1[l] },
+            ),
+            _ => (l..body)
+                .step_by(8)
+                .filter(|&i| !taken.iter().any(|t| t.0 as usize == i))
+                .fold((f32::INFINITY, f32::NEG_INFINITY), |(lo, hi), i| {
+                    (lo.min(row[i]), hi.max(row[i]))
+                }),
+        };
+        lo = if lane_lo < lo { lane_lo } else { lo };
+        hi = if lane_hi > hi { lane_hi } else { hi };
+    }
+    for (i, &v) in row.iter().enumerate().skip(body) {
+        if !taken.iter().any(|t| t.0 as usize == i) {
+            lo = if v < lo { v } else { lo };
+            hi = if v > hi { v } else { hi };
+        }
+    }
+    let (lo, step) = if row.is_empty() {
+        (0.0, 1.0)
+    } else if hi > lo {
+        (lo, (hi - lo) / ACT_MAX as f32)
+    } else {
+        (lo, 1.0)
+    };
+    let inv = 1.0 / step;
+    // As in quantise_row: `v - lo` is never negative for a value in the range.
+    for (c, v) in codes.iter_mut().zip(row) {
+        *c = ((v - lo) * inv + 0.5) as u8;
+    }
+    codes[row.len()..].fill(0);
+    let zero = ((0.0 - lo) * inv + 0.5) as u8;
+    for &(i, _) in taken {
+        codes[i as usize] = zero;
+    }
+    (top, lo, step)
+}
+
 /// One block of at most `MC` rows: quantise them, then every tile, then the epilogue while the
 /// block is in cache. The tiles run on the AVX2 kernel where the CPU has AVX2, else on the
 /// portable one; both give the same integers.
@@ -345,8 +494,9 @@ fn quantise_block(rows: &[f32], k: usize, kp: usize, s: &mut Scratch) {
     s.affine.clear();
     s.outliers.clear();
     for (row, codes) in rows.chunks_exact(k).zip(s.codes.chunks_exact_mut(kp)) {
-        s.outliers.push(split_row(row, &mut s.row));
-        s.affine.push(quantise_row(&s.row, codes));
+        let (outliers, lo, step) = split_quantise_row(row, codes, &mut s.blocks);
+        s.outliers.push(outliers);
+        s.affine.push((lo, step));
     }
 }
 
@@ -462,6 +612,7 @@ pub fn tile_avx2(simd: V3, sliver: &[u8], kp: usize, panel: &[i8]) -> [[i32; NR]
 mod tests {
     use super::*;
     use crate::testdata::data;
+    use proptest::strategy::Strategy;
 
     /// The exact product of the dequantised operands, in f64: what the 8-bit path must equal
     /// up to f32 rounding, whatever the quantisation error against the f32 product.
@@ -519,6 +670,56 @@ mod tests {
                 assert_eq!(*v, if taken { 0.0 } else { row[i] }, "len {len} entry {i}");
             }
         }
+    }
+
+    /// The two-step reference ([`split_row`], then [`quantise_row`] of the zeroed copy) and the
+    /// fused pass on one row: outliers, codes (with padding past the row) and `(lo, step)` bit
+    /// for bit.
+    fn assert_fused_matches_two_steps(row: &[f32], pad: usize) {
+        let mut rest = Vec::new();
+        let want_outliers = split_row(row, &mut rest);
+        let mut want_codes = vec![9u8; row.len() + pad];
+        let (want_lo, want_step) = quantise_row(&rest, &mut want_codes);
+        let mut codes = vec![9u8; row.len() + pad];
+        let (outliers, lo, step) = split_quantise_row(row, &mut codes, &mut Vec::new());
+        let bits = |o: &Outliers| o.map(|(i, v)| (i, v.to_bits()));
+        assert_eq!(bits(&outliers), bits(&want_outliers), "outliers of {row:?}");
+        assert_eq!(codes, want_codes, "codes of {row:?}");
+        assert_eq!(
+            (lo.to_bits(), step.to_bits()),
+            (want_lo.to_bits(), want_step.to_bits()),
+            "range of {row:?}"
+        );
+    }
+
+    #[test]
+    fn fused_row_pass_equals_split_then_quantise() {
+        for (len, seed) in [(0, 1), (1, 1), (3, 2), (8, 3), (13, 4), (64, 5), (71, 6)] {
+            assert_fused_matches_two_steps(&data(len, seed), 0);
+            assert_fused_matches_two_steps(&data(len, seed), 5);
+        }
+        for (len, seed) in [(384, 7), (1536, 8), (200, 9)] {
+            let mut row = data(len, seed);
+            assert_fused_matches_two_steps(&row, 0);
+            // Several outliers in one lane (indices 8 apart), one in the ragged end, and a
+            // lane whose largest value is an outlier twice over (ties at the top).
+            for (i, v) in [(3, 9.0), (11, -8.0), (19, 7.5), (len - 1, 6.0)] {
+                row[i] = v;
+            }
+            assert_fused_matches_two_steps(&row, 3);
+            row[27] = 9.0;
+            row[35] = -9.0;
+            assert_fused_matches_two_steps(&row, 0);
+            // Rows all on one side of zero, so the outliers' zero sets an end of the range.
+            let positive: Vec<f32> = row.iter().map(|v| v.abs() + 0.5).collect();
+            assert_fused_matches_two_steps(&positive, 0);
+            let negative: Vec<f32> = positive.iter().map(|v| -v).collect();
+            assert_fused_matches_two_steps(&negative, 0);
+            // Many ties.
+            let coarse: Vec<f32> = row.iter().map(|v| (v * 2.0).round()).collect();
+            assert_fused_matches_two_steps(&coarse, 0);
+        }
+        assert_fused_matches_two_steps(&[2.0; 40], 0);
     }
 
     #[test]
@@ -617,6 +818,19 @@ mod tests {
         // Invariants of the row quantiser on any finite row: codes stay in [0, ACT_MAX], the
         // row's minimum and maximum get the end codes, every value is rebuilt within half a
         // step, and the zero padding past the row stays zero.
+        // The fused row pass against the two-step reference on any finite row, including
+        // rows of few distinct values (ties) and lengths off the runs of 8 and 64.
+        #[test]
+        fn fused_row_pass_equals_split_then_quantise_on_any_row(
+            row in proptest::collection::vec(
+                proptest::prop_oneof![-1e3f32..1e3, (-3i32..4).prop_map(|v| v as f32)],
+                0..400,
+            ),
+            pad in 0usize..9,
+        ) {
+            assert_fused_matches_two_steps(&row, pad);
+        }
+
         #[test]
         fn quantised_rows_round_trip_within_half_a_step(
             row in proptest::collection::vec(-1e4f32..1e4, 1..300),
