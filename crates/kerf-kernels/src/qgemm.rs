@@ -545,10 +545,19 @@ fn all_tiles(
             let acc = tile(&s.codes[ir * kp..(ir + MR) * kp], panel);
             for (r, acc) in acc.iter().enumerate().take(mc - ir) {
                 let (lo, step) = s.affine[ir + r];
-                let row: [f32; NR] =
-                    std::array::from_fn(|c| step * scale[c] * acc[c] as f32 + lo * offset[c]);
+                let out = |c: usize| step * scale[c] * acc[c] as f32 + lo * offset[c];
                 let at = (ir + r) * n + jr;
-                dst[at..at + cols].copy_from_slice(&row[..cols]);
+                // Whole tile rows are written as a fixed 16-wide row, straight into `dst`:
+                // building the row in a temporary and copying `cols` values compiled to a
+                // memcpy call per row and tile (3% of the product benchmark's samples).
+                match <&mut [f32; NR]>::try_from(&mut dst[at..at + cols]) {
+                    Ok(whole) => *whole = std::array::from_fn(out),
+                    Err(_) => {
+                        for (c, d) in dst[at..at + cols].iter_mut().enumerate() {
+                            *d = out(c);
+                        }
+                    }
+                }
             }
         }
     }
