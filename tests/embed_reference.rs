@@ -237,7 +237,10 @@ fn bad_model_folders_name_the_problem() {
         .err()
         .unwrap()
         .to_string();
-    assert!(e.contains("model_type `gpt2` is not supported"), "{e}");
+    assert!(
+        e.contains("architecture `gpt2` (model_type) is not one kerf's encoder runs; supported: bert, roberta"),
+        "{e}"
+    );
     // Weights that disagree with the config: a wider hidden size.
     std::fs::write(
         dir.path().join("config.json"),

@@ -40,10 +40,12 @@ pub enum ModelError {
     },
 }
 
-/// Model families (config.json `model_type`) whose encoder kerf runs (`embed::BertEmbedder`
-/// runs BERT only; RoBERTa, XLM-RoBERTa, DistilBERT and MPNet folders are read, surveyed and
-/// cut, with their position offsets, but not embedded).
-pub const SUPPORTED_ARCHITECTURES: &[&str] = &["bert"];
+/// Model families (config.json `model_type`) whose encoder kerf runs: those
+/// [`crate::embed::family::FAMILIES`] maps the weights of (other known families, such as MPNet,
+/// are read, surveyed and cut with their position offsets, but not embedded).
+pub fn supported_architectures() -> Vec<&'static str> {
+    crate::embed::family::runnable_model_types()
+}
 
 /// Token pooling modes kerf's encoder applies (names as profiles and reports spell them).
 pub const RUNNABLE_POOLING: &[&str] = &["mean", "cls", "max", "mean-sqrt-len"];
@@ -284,13 +286,11 @@ impl ModelInfo {
             .saturating_sub(self.position_offset())
     }
 
-    /// Positions the family reserves before the first token (0 for BERT-style models).
+    /// Positions the family reserves before the first token (0 for BERT-style models and for
+    /// architectures kerf does not know), from [`crate::embed::family`].
     pub fn position_offset(&self) -> usize {
-        match self.model_type.as_str() {
-            "roberta" | "xlm-roberta" | "camembert" => self.pad_token_id.unwrap_or(1) + 1,
-            "mpnet" => 2,
-            _ => 0,
-        }
+        crate::embed::family::family_of(&self.model_type)
+            .map_or(0, |f| f.position_offset(self.pad_token_id))
     }
 
     /// Where the position limit comes from, for messages.
@@ -332,12 +332,19 @@ impl ModelInfo {
             ));
             return why;
         }
-        if !SUPPORTED_ARCHITECTURES.contains(&self.model_type.as_str()) {
+        let supported = supported_architectures();
+        if !supported.contains(&self.model_type.as_str()) {
             why.push(format!(
                 "config.json: architecture `{}` (model_type) is not one kerf runs; supported: {}",
                 self.model_type,
-                SUPPORTED_ARCHITECTURES.join(", ")
+                supported.join(", ")
             ));
+        } else if let Some(f) = crate::embed::family::family_of(&self.model_type) {
+            why.extend(
+                f.unsupported_options(&self.config)
+                    .into_iter()
+                    .map(|o| format!("config.json: {o}")),
+            );
         }
         if !self.has_weights {
             why.push("model.safetensors: missing".to_string());
@@ -485,12 +492,9 @@ pub fn inspect(dir: &Path) -> Result<(ModelInfo, TokenCounter), ModelError> {
             None => problems.push("config.json: missing key `model_type`".to_string()),
         }
         max_pos = usize_key(c, "config.json", "max_position_embeddings", &mut problems);
-        // DistilBERT's config names the width `dim`.
-        let width_key = if c.get("hidden_size").is_none() && c.get("dim").is_some() {
-            "dim"
-        } else {
-            "hidden_size"
-        };
+        // Each family names the width its own way (DistilBERT: `dim`).
+        let width_key =
+            crate::embed::family::family_of(&model_type).map_or("hidden_size", |f| f.keys.hidden);
         hidden = usize_key(c, "config.json", width_key, &mut problems);
         vocab = usize_key(c, "config.json", "vocab_size", &mut problems);
         pad_token_id = c

@@ -1,5 +1,7 @@
-//! BERT-family encoder on CPU with candle: tokenizer, memory-mapped weights, forward pass,
-//! pooling over the attention mask, normalisation.
+//! The encoder on CPU: tokenizer, memory-mapped weights, forward pass, pooling over the
+//! attention mask, normalisation. The packed engine runs every family [`super::family`] maps
+//! (BERT, RoBERTa, XLM-RoBERTa, DistilBERT); the candle engine, kept as the reference, runs
+//! BERT.
 use std::path::Path;
 use std::sync::Mutex;
 use std::time::Instant;
@@ -10,6 +12,7 @@ use candle_transformers::models::bert::{BertModel, Config};
 use sha2::{Digest, Sha256};
 use tokenizers::{Tokenizer, TruncationParams};
 
+use super::family::{self, WeightNames};
 use super::packed::{self, PackedModel};
 use super::{
     EmbedError, EmbedOptions, EmbedStats, Embedder, Engine, Precision, SpanPass, TokenIds,
@@ -23,7 +26,7 @@ enum Runner {
     Candle(BertModel),
 }
 
-/// A BERT-family sentence encoder.
+/// A sentence encoder of one of the families in [`super::family`] (the name is historical).
 pub struct BertEmbedder {
     runner: Runner,
     threads: usize,
@@ -79,64 +82,55 @@ fn file_err(path: &Path, reason: impl ToString) -> EmbedError {
     }
 }
 
-/// Shapes every BERT checkpoint must have, checked before loading so a bad file gets a message
-/// naming the tensor rather than a failure deep in the forward pass.
-fn expected_shapes(c: &Config) -> Vec<(String, Vec<usize>)> {
-    let (h, i, v, p, t) = (
-        c.hidden_size,
-        c.intermediate_size,
-        c.vocab_size,
-        c.max_position_embeddings,
-        c.type_vocab_size,
-    );
+/// Shapes every checkpoint of a family must have, checked before loading so a bad file gets a
+/// message naming the tensor rather than a failure deep in the forward pass.
+fn expected_shapes(d: &packed::Dims, names: &WeightNames) -> Vec<(String, Vec<usize>)> {
+    let (h, i) = (d.hidden, d.intermediate);
     let mut out = vec![
-        ("embeddings.word_embeddings.weight".to_string(), vec![v, h]),
-        (
-            "embeddings.position_embeddings.weight".to_string(),
-            vec![p, h],
-        ),
-        (
-            "embeddings.token_type_embeddings.weight".to_string(),
-            vec![t, h],
-        ),
-        ("embeddings.LayerNorm.weight".to_string(), vec![h]),
-        ("embeddings.LayerNorm.bias".to_string(), vec![h]),
+        (format!("{}.weight", names.word), vec![d.vocab, h]),
+        (format!("{}.weight", names.position), vec![d.positions, h]),
+        (format!("{}.weight", names.embed_norm), vec![h]),
+        (format!("{}.bias", names.embed_norm), vec![h]),
     ];
-    for l in 0..c.num_hidden_layers {
-        let pre = format!("encoder.layer.{l}");
-        for (name, shape) in [
-            ("attention.self.query.weight", vec![h, h]),
-            ("attention.self.query.bias", vec![h]),
-            ("attention.self.key.weight", vec![h, h]),
-            ("attention.self.key.bias", vec![h]),
-            ("attention.self.value.weight", vec![h, h]),
-            ("attention.self.value.bias", vec![h]),
-            ("attention.output.dense.weight", vec![h, h]),
-            ("attention.output.dense.bias", vec![h]),
-            ("attention.output.LayerNorm.weight", vec![h]),
-            ("attention.output.LayerNorm.bias", vec![h]),
-            ("intermediate.dense.weight", vec![i, h]),
-            ("intermediate.dense.bias", vec![i]),
-            ("output.dense.weight", vec![h, i]),
-            ("output.dense.bias", vec![h]),
-            ("output.LayerNorm.weight", vec![h]),
-            ("output.LayerNorm.bias", vec![h]),
+    if let Some(t) = names.token_type {
+        out.push((format!("{t}.weight"), vec![d.type_vocab, h]));
+    }
+    for l in 0..d.layers {
+        for (part, outputs, inputs) in [
+            (names.query, h, h),
+            (names.key, h, h),
+            (names.value, h, h),
+            (names.attn_out, h, h),
+            (names.up, i, h),
+            (names.down, h, i),
         ] {
-            out.push((format!("{pre}.{name}"), shape));
+            let name = names.layer(l, part);
+            out.push((format!("{name}.weight"), vec![outputs, inputs]));
+            out.push((format!("{name}.bias"), vec![outputs]));
+        }
+        for part in [names.attn_norm, names.out_norm] {
+            let name = names.layer(l, part);
+            out.push((format!("{name}.weight"), vec![h]));
+            out.push((format!("{name}.bias"), vec![h]));
         }
     }
     out
 }
 
-fn check_tensors(path: &Path, bytes: &[u8], c: &Config) -> Result<(), EmbedError> {
+fn check_tensors(
+    path: &Path,
+    bytes: &[u8],
+    dims: &packed::Dims,
+    names: &WeightNames,
+) -> Result<(), EmbedError> {
     let st = safetensors::SafeTensors::deserialize(bytes)
         .map_err(|e| file_err(path, format!("not a safetensors file: {e}")))?;
-    let names: std::collections::HashSet<String> =
+    let present: std::collections::HashSet<String> =
         st.names().into_iter().map(String::from).collect();
-    for (name, shape) in expected_shapes(c) {
-        let found = [name.clone(), format!("bert.{name}")]
-            .into_iter()
-            .find(|n| names.contains(n));
+    for (name, shape) in expected_shapes(dims, names) {
+        let found = std::iter::once(name.clone())
+            .chain(names.prefixes.iter().map(|p| format!("{p}{name}")))
+            .find(|n| present.contains(n));
         let Some(found) = found else {
             return Err(EmbedError::Tensor {
                 path: path.to_path_buf(),
@@ -179,18 +173,32 @@ impl BertEmbedder {
         }
         let dir = info.dir.as_path();
         let cfg_path = dir.join("config.json");
-        if info.model_type != "bert" {
+        let family = family::family_of(&info.model_type);
+        let Some((family, names)) = family.and_then(|f| f.weights.as_ref().map(|n| (f, n))) else {
             return Err(EmbedError::Architecture {
                 path: cfg_path,
                 model_type: info.model_type.clone(),
+                supported: family::runnable_model_types().join(", "),
             });
+        };
+        if opts.engine == Engine::Candle && info.model_type != "bert" {
+            return Err(EmbedError::Unsupported(format!(
+                "{}: the candle engine is the BERT reference and runs model_type \"bert\" only; `{}` runs on the packed engine",
+                cfg_path.display(),
+                info.model_type
+            )));
         }
-        let config: Config = serde_json::from_value(info.config.clone())
-            .map_err(|e| file_err(&cfg_path, format!("not a BERT config: {e}")))?;
-        if opts.max_input_tokens == 0 || opts.max_input_tokens > config.max_position_embeddings {
+        let dims = family
+            .dims(&info.config)
+            .map_err(|e| file_err(&cfg_path, e))?;
+        let padding_idx = family.padding_idx(info.pad_token_id);
+        let usable = dims
+            .positions
+            .saturating_sub(family.position_offset(info.pad_token_id));
+        if opts.max_input_tokens == 0 || opts.max_input_tokens > usable {
             return Err(EmbedError::Mismatch(format!(
-                "max_input_tokens {} must be between 1 and the model's {} positions",
-                opts.max_input_tokens, config.max_position_embeddings
+                "max_input_tokens {} must be between 1 and the model's {usable} usable positions",
+                opts.max_input_tokens
             )));
         }
         let weights_path = dir.join("model.safetensors");
@@ -198,18 +206,21 @@ impl BertEmbedder {
         // SAFETY: the weights file is mapped read-only and not modified while the model lives;
         // this is the one memory-mapped load the project allows.
         let mmap = unsafe { memmap2::Mmap::map(&file) }.map_err(|e| file_err(&weights_path, e))?;
-        check_tensors(&weights_path, &mmap, &config)?;
+        check_tensors(&weights_path, &mmap, &dims, names)?;
+        family
+            .check_heads(&dims)
+            .map_err(|e| file_err(&cfg_path, e))?;
 
         let tok_path = dir.join("tokenizer.json");
         let tok_bytes = std::fs::read(&tok_path).map_err(|e| file_err(&tok_path, e))?;
         let mut tokenizer =
             Tokenizer::from_bytes(&tok_bytes).map_err(|e| file_err(&tok_path, e))?;
         let vocab = tokenizer.get_vocab_size(true);
-        if vocab > config.vocab_size {
+        if vocab > dims.vocab {
             return Err(EmbedError::Mismatch(format!(
                 "{}: the tokenizer has {vocab} tokens but the weights' vocabulary (config.json vocab_size) has {}",
                 tok_path.display(),
-                config.vocab_size
+                dims.vocab
             )));
         }
         tokenizer.with_padding(None);
@@ -255,6 +266,8 @@ impl BertEmbedder {
 
         let runner = match opts.engine {
             Engine::Candle => {
+                let config: Config = serde_json::from_value(info.config.clone())
+                    .map_err(|e| file_err(&cfg_path, format!("not a BERT config: {e}")))?;
                 let vb = VarBuilder::from_slice_safetensors(&mmap, DType::F32, &Device::Cpu)
                     .map_err(|e| file_err(&weights_path, e))?;
                 Runner::Candle(
@@ -262,32 +275,15 @@ impl BertEmbedder {
                 )
             }
             Engine::Packed => {
-                use candle_transformers::models::bert::HiddenAct;
-                if !matches!(config.hidden_act, HiddenAct::Gelu) {
+                let options = family.unsupported_options(&info.config);
+                if !options.is_empty() {
                     return Err(EmbedError::Unsupported(format!(
-                        "{}: hidden_act {:?} is not supported by the packed engine (it runs \"gelu\"); use the candle engine",
+                        "{}: {} (the packed engine; the candle reference runs other BERT activations)",
                         cfg_path.display(),
-                        config.hidden_act
+                        options.join("; ")
                     )));
                 }
-                if config.hidden_size % config.num_attention_heads != 0 {
-                    return Err(file_err(
-                        &cfg_path,
-                        "hidden_size is not a multiple of num_attention_heads",
-                    ));
-                }
-                let dims = packed::Dims {
-                    hidden: config.hidden_size,
-                    heads: config.num_attention_heads,
-                    intermediate: config.intermediate_size,
-                    layers: config.num_hidden_layers,
-                    positions: config.max_position_embeddings,
-                    vocab: config.vocab_size,
-                    eps: config.layer_norm_eps as f32,
-                };
-                let st = safetensors::SafeTensors::deserialize(&mmap)
-                    .map_err(|e| file_err(&weights_path, e))?;
-                let model = packed::load(&st, dims, opts.precision)
+                let model = packed::load_bytes(&mmap, dims, names, padding_idx, opts.precision)
                     .map_err(|e| file_err(&weights_path, e))?;
                 Runner::Packed(model)
             }
@@ -308,7 +304,7 @@ impl BertEmbedder {
             counter,
             pooling,
             normalize,
-            dim: config.hidden_size,
+            dim: dims.hidden,
             max_batch_tokens: opts.max_batch_tokens.max(1),
             max_input: opts.max_input_tokens,
             lead_ids,

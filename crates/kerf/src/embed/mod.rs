@@ -3,8 +3,10 @@
 //! Everything downstream (pooling chunks into documents, comparing with references) talks to
 //! the model through the [`Embedder`] trait, so it is tested fast with the model-free
 //! [`HashEmbedder`] and run for real with [`BertEmbedder`], a CPU forward pass over a
-//! BERT-family checkpoint (MiniLM, BGE-small, E5-small and GTE-small share the architecture).
+//! checkpoint of one of the families in [`family`]: BERT (MiniLM, BGE-small, E5-small and
+//! GTE-small share it), RoBERTa, XLM-RoBERTa and DistilBERT.
 mod bert;
+pub mod family;
 pub use kerf_kernels as kernels;
 pub mod packed;
 
@@ -58,12 +60,14 @@ pub enum EmbedError {
         reason: String,
     },
     /// config.json names an architecture this encoder does not run.
-    #[error("{path}: model_type `{model_type}` is not supported (kerf runs BERT-family encoders: model_type \"bert\")")]
+    #[error("{path}: architecture `{model_type}` (model_type) is not one kerf's encoder runs; supported: {supported}")]
     Architecture {
         /// The file or folder concerned.
         path: std::path::PathBuf,
         /// The architecture config.json names.
         model_type: String,
+        /// The model types kerf runs, comma-separated.
+        supported: String,
     },
     /// A weight tensor is missing or has the wrong shape.
     #[error("{path}: tensor `{name}` {problem}")]

@@ -1,4 +1,5 @@
-//! The packed encoder: a BERT forward pass over sequences laid end to end, with no padding.
+//! The packed encoder: a BERT-style forward pass (BERT, RoBERTa, XLM-RoBERTa, DistilBERT: the
+//! differences are data in [`super::family`]) over sequences laid end to end, with no padding.
 //!
 //! The stock candle model pads every batch to its longest input and runs attention over the
 //! padded square. Here a batch is one `[tokens, hidden]` matrix holding every sequence's rows
@@ -11,13 +12,15 @@
 //! the batch ([`PackedModel::forward_shared_out`]).
 use rayon::prelude::*;
 
+use super::family::WeightNames;
 use super::kernels;
 use super::kernels::attention::{attend, Scratch};
 use super::kernels::qgemm::{matmul_i8, PackedI8};
 use super::kernels::sgemm::{matmul_packed, Epilogue, PackedRhs, Rows};
 use super::{Precision, TokenPooling};
 
-/// Sizes of a BERT encoder, from config.json.
+/// Sizes of an encoder, from config.json (read with its family's key names:
+/// [`super::family::Family::dims`]).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Dims {
     /// Width of the hidden states.
@@ -32,6 +35,8 @@ pub struct Dims {
     pub positions: usize,
     /// Vocabulary.
     pub vocab: usize,
+    /// Rows of the token-type table (0: the family has none).
+    pub type_vocab: usize,
     /// LayerNorm epsilon.
     pub eps: f32,
 }
@@ -104,8 +109,12 @@ pub struct Embeddings {
     pub word: Vec<f32>,
     /// `[positions, hidden]`.
     pub position: Vec<f32>,
-    /// Token type 0's row, `[hidden]` (kerf embeds single segments).
+    /// Token type 0's row, `[hidden]` (kerf embeds single segments); zeros for a family
+    /// without token types.
     pub token_type0: Vec<f32>,
+    /// RoBERTa-style position numbering: `Some(padding_idx)` (see
+    /// [`super::family::Positions::AfterPadding`]); `None`: token `i` takes row `i`.
+    pub padding_idx: Option<u32>,
     /// LayerNorm after the sum.
     pub norm: Norm,
 }
@@ -208,8 +217,18 @@ impl PackedModel {
         let h = self.dims.hidden;
         let e = &self.embeddings;
         for (s, &off) in seqs.iter().zip(offsets) {
-            for (pos, &id) in s.iter().enumerate() {
-                let row = &mut hidden[(off + pos) * h..(off + pos + 1) * h];
+            // Non-padding tokens seen so far, for RoBERTa-style numbering.
+            let mut counted = 0usize;
+            for (i, &id) in s.iter().enumerate() {
+                let pos = match e.padding_idx {
+                    None => i,
+                    Some(p) if id == p => p as usize,
+                    Some(p) => {
+                        counted += 1;
+                        p as usize + counted
+                    }
+                };
+                let row = &mut hidden[(off + i) * h..(off + i + 1) * h];
                 let word = &e.word[id as usize * h..(id as usize + 1) * h];
                 let place = &e.position[pos * h..(pos + 1) * h];
                 kernels::sum3(row, word, place, &e.token_type0);
@@ -253,22 +272,37 @@ impl PackedModel {
     }
 }
 
-/// Read the weights of a BERT checkpoint from safetensors bytes (f32, f16 or bf16 tensors, names
-/// with or without a `bert.` prefix) into the packed layouts. Shapes must already have been
-/// checked against `dims`; `Err` carries the name of a tensor that could not be read. The dense
+/// [`load`] from the bytes of a safetensors file.
+pub fn load_bytes(
+    bytes: &[u8],
+    dims: Dims,
+    names: &WeightNames,
+    padding_idx: Option<usize>,
+    precision: Precision,
+) -> Result<PackedModel, String> {
+    let st = safetensors::SafeTensors::deserialize(bytes).map_err(|e| e.to_string())?;
+    load(&st, dims, names, padding_idx, precision)
+}
+
+/// Read the weights of a checkpoint from safetensors bytes (f32, f16 or bf16 tensors, named as
+/// `names` says, with or without one of its prefixes) into the packed layouts; `padding_idx`
+/// selects RoBERTa-style position numbering ([`Embeddings::padding_idx`]). Shapes must already
+/// have been checked against `dims`; `Err` carries the name of a tensor that could not be read. The dense
 /// layers' weights are packed for `precision`: bf16 rounds them to bfloat16 (products then see
 /// bf16 weights with f32 accumulation, what bf16 dot-product instructions compute), int8
 /// quantises them per output column for the 8-bit product.
 pub fn load(
     st: &safetensors::SafeTensors<'_>,
     dims: Dims,
+    names: &WeightNames,
+    padding_idx: Option<usize>,
     precision: Precision,
 ) -> Result<PackedModel, String> {
     let get = |name: &str| -> Result<Vec<f32>, String> {
-        let t = st
-            .tensor(name)
-            .or_else(|_| st.tensor(&format!("bert.{name}")))
-            .map_err(|_| format!("tensor `{name}` is missing"))?;
+        let t = std::iter::once(String::new())
+            .chain(names.prefixes.iter().map(|p| p.to_string()))
+            .find_map(|p| st.tensor(&format!("{p}{name}")).ok())
+            .ok_or_else(|| format!("tensor `{name}` is missing"))?;
         let b = t.data();
         use safetensors::Dtype;
         Ok(match t.dtype() {
@@ -318,19 +352,38 @@ pub fn load(
         })
     };
     let (h, i) = (dims.hidden, dims.intermediate);
-    let types = get("embeddings.token_type_embeddings.weight")?;
+    let token_type0 = match names.token_type {
+        Some(t) => {
+            let types = get(&format!("{t}.weight"))?;
+            if types.len() < h {
+                return Err(format!("tensor `{t}.weight` has no row for token type 0"));
+            }
+            types[..h].to_vec()
+        }
+        None => vec![0.0; h],
+    };
+    let padding_idx = match padding_idx {
+        Some(p) if p >= dims.positions => {
+            return Err(format!(
+                "padding index {p} lies outside the {} position rows",
+                dims.positions
+            ))
+        }
+        p => p.map(|p| p as u32),
+    };
     let embeddings = Embeddings {
-        word: get("embeddings.word_embeddings.weight")?,
-        position: get("embeddings.position_embeddings.weight")?,
-        token_type0: types[..h].to_vec(),
-        norm: norm("embeddings.LayerNorm")?,
+        word: get(&format!("{}.weight", names.word))?,
+        position: get(&format!("{}.weight", names.position))?,
+        token_type0,
+        padding_idx,
+        norm: norm(names.embed_norm)?,
     };
     let mut layers = Vec::with_capacity(dims.layers);
     for l in 0..dims.layers {
-        let pre = format!("encoder.layer.{l}");
+        let name = |part: &str| names.layer(l, part);
         // Query, key and value stacked as one [3h, h] weight: one product instead of three.
-        let part = |name: &str| weight_and_bias(&format!("{pre}.attention.self.{name}"), h, h);
-        let (q, k, v) = (part("query")?, part("key")?, part("value")?);
+        let part = |p: &str| weight_and_bias(&name(p), h, h);
+        let (q, k, v) = (part(names.query)?, part(names.key)?, part(names.value)?);
         let qkv = Linear {
             weight: Weight::pack(&[q.0, k.0, v.0].concat(), 3 * h, h, precision),
             bias: [q.1, k.1, v.1].concat(),
@@ -339,11 +392,11 @@ pub fn load(
         };
         layers.push(Layer {
             qkv,
-            attn_out: linear(&format!("{pre}.attention.output.dense"), h, h)?,
-            attn_norm: norm(&format!("{pre}.attention.output.LayerNorm"))?,
-            up: linear(&format!("{pre}.intermediate.dense"), h, i)?,
-            down: linear(&format!("{pre}.output.dense"), i, h)?,
-            out_norm: norm(&format!("{pre}.output.LayerNorm"))?,
+            attn_out: linear(&name(names.attn_out), h, h)?,
+            attn_norm: norm(&name(names.attn_norm))?,
+            up: linear(&name(names.up), h, i)?,
+            down: linear(&name(names.down), i, h)?,
+            out_norm: norm(&name(names.out_norm))?,
         });
     }
     Ok(PackedModel {
