@@ -248,7 +248,7 @@ impl PackedModel {
                 let base = offsets[s] * 3 * h;
                 // Part 0, 1, 2 (query, key, value) of this head: `hd` columns of each fused row.
                 let part = |p: usize| Rows::new(&qkv[base + p * h + head * hd..], len, hd, 3 * h);
-                attend(dst, part(0), part(1), part(2), scale, scratch);
+                attend(dst, part(0), part(1), part(2), scale, None, scratch);
             });
     }
 }
