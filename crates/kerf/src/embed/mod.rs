@@ -6,6 +6,7 @@
 //! BERT-family checkpoint (MiniLM, BGE-small, E5-small and GTE-small share the architecture).
 mod bert;
 pub use kerf_kernels as kernels;
+pub mod mpnet;
 pub mod packed;
 
 pub use bert::BertEmbedder;
