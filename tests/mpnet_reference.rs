@@ -73,7 +73,10 @@ fn worst_against_fixture(precision: Precision, sentence_bar: f32, token_bar: f32
             // Sentence vector: mean pooling, normalised, as the folder declares.
             let c = cosine(v, &floats(&t["sentence"]));
             worst_sentence = worst_sentence.min(c);
-            assert!(c >= sentence_bar, "{precision:?}: sentence cosine {c} ({n} tokens)");
+            assert!(
+                c >= sentence_bar,
+                "{precision:?}: sentence cosine {c} ({n} tokens)"
+            );
             assert!((v.iter().map(|x| x * x).sum::<f32>() - 1.0).abs() < 1e-4);
             // Token vectors: the rows of the fixture's ids, run as one pass.
             let ids: Vec<u32> = t["ids"]
