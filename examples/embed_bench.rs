@@ -5,6 +5,9 @@
 //! Usage: cargo run --release --example embed_bench -- TEXTS.jsonl [THREADS] [MAX_INPUT_TOKENS]
 //!        [ENGINE: packed|candle] [PRECISION: f32|bf16|int8]
 //!
+//! The model folder is the default model's unless `KERF_BENCH_MODEL` names another folder
+//! (scripts/bench-embed-mpnet sets it to all-mpnet-base-v2's).
+//!
 //! Besides throughput it prints the floating-point work done (matrix products and attention,
 //! counted from the model's sizes and each input's length), so the caller can compare the rate
 //! with the machine's measured matrix-product peak.
@@ -33,8 +36,10 @@ fn main() -> anyhow::Result<()> {
         Some(other) => anyhow::bail!("unknown precision {other}"),
     };
     let texts = texts::read(path)?;
+    let model_dir = std::env::var_os("KERF_BENCH_MODEL")
+        .map_or_else(kerf::model::default_model_dir, std::path::PathBuf::from);
     let e = BertEmbedder::load(
-        &kerf::model::default_model_dir(),
+        &model_dir,
         &EmbedOptions {
             threads,
             max_input_tokens,
@@ -51,9 +56,8 @@ fn main() -> anyhow::Result<()> {
     // MiniLM-L6 sizes (config.json of the default model): 6 layers, hidden 384, feed-forward
     // 1,536. Per token and layer: 2*(h*3h + h*h + 2*h*i) for the products, 4*len*h for
     // attention scores and weighted values.
-    let cfg: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(
-        kerf::model::default_model_dir().join("config.json"),
-    )?)?;
+    let cfg: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(model_dir.join("config.json"))?)?;
     let (h, i, layers) = (
         cfg["hidden_size"].as_f64().unwrap_or(384.0),
         cfg["intermediate_size"].as_f64().unwrap_or(1536.0),

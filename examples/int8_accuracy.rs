@@ -4,6 +4,8 @@
 //! tokens), and to choose the int8 product's settings.
 //!
 //! Usage: cargo run --release --example int8_accuracy -- TEXTS.jsonl [MAX_INPUT_TOKENS]
+//!
+//! The model folder is the default model's unless `KERF_BENCH_MODEL` names another folder.
 #[path = "common/texts.rs"]
 mod texts;
 use kerf::embed::{BertEmbedder, EmbedOptions, Embedder, Precision};
@@ -17,9 +19,11 @@ fn main() -> anyhow::Result<()> {
     let max_input_tokens: usize = args.get(2).map_or(Ok(256), |t| t.parse())?;
     let texts = texts::read(path)?;
     let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
+    let model_dir = std::env::var_os("KERF_BENCH_MODEL")
+        .map_or_else(kerf::model::default_model_dir, std::path::PathBuf::from);
     let embed = |precision| -> anyhow::Result<Vec<Vec<f32>>> {
         let e = BertEmbedder::load(
-            &kerf::model::default_model_dir(),
+            &model_dir,
             &EmbedOptions {
                 max_input_tokens,
                 precision,

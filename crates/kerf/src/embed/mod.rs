@@ -8,6 +8,7 @@
 mod bert;
 pub mod family;
 pub use kerf_kernels as kernels;
+pub mod mpnet;
 pub mod packed;
 
 pub use bert::BertEmbedder;

@@ -17,6 +17,7 @@ use super::kernels;
 use super::kernels::attention::{attend, Scratch};
 use super::kernels::qgemm::{matmul_i8, PackedI8};
 use super::kernels::sgemm::{matmul_packed, Epilogue, PackedRhs, Rows};
+use super::mpnet::RelativeBias;
 use super::{Precision, TokenPooling};
 
 /// Sizes of an encoder, from config.json (read with its family's key names:
@@ -127,6 +128,9 @@ pub struct PackedModel {
     pub embeddings: Embeddings,
     /// Encoder layers.
     pub layers: Vec<Layer>,
+    /// MPNet's relative position bias, shared by every layer's attention (`None`: the family
+    /// has none).
+    pub relative_bias: Option<RelativeBias>,
 }
 
 /// Rows per parallel task in the row-wise steps.
@@ -267,7 +271,11 @@ impl PackedModel {
                 let base = offsets[s] * 3 * h;
                 // Part 0, 1, 2 (query, key, value) of this head: `hd` columns of each fused row.
                 let part = |p: usize| Rows::new(&qkv[base + p * h + head * hd..], len, hd, 3 * h);
-                attend(dst, part(0), part(1), part(2), scale, scratch);
+                let bias = self
+                    .relative_bias
+                    .as_ref()
+                    .map(|b| b.for_sequence(head, len));
+                attend(dst, part(0), part(1), part(2), scale, bias, scratch);
             });
     }
 }
@@ -403,6 +411,7 @@ pub fn load(
         dims,
         embeddings,
         layers,
+        relative_bias: None,
     })
 }
 
