@@ -135,7 +135,7 @@ fn model_json_carries_every_convention() {
 fn unsupported_architecture_and_pooling_are_named() {
     let out = model_report("electra-st6");
     assert!(
-        out.contains("architecture `electra` (model_type) is not one kerf runs; supported: bert, roberta, xlm-roberta, distilbert"),
+        out.contains("architecture `electra` (model_type) is not one kerf runs; supported: bert, roberta, xlm-roberta, distilbert, mpnet"),
         "{out}"
     );
     let out = model_report("bert-lasttoken");

@@ -95,6 +95,12 @@ fn expected_shapes(d: &packed::Dims, names: &WeightNames) -> Vec<(String, Vec<us
     if let Some(t) = names.token_type {
         out.push((format!("{t}.weight"), vec![d.type_vocab, h]));
     }
+    if let Some(b) = names.relative_bias {
+        out.push((
+            format!("{b}.weight"),
+            vec![super::mpnet::NUM_BUCKETS, d.heads],
+        ));
+    }
     for l in 0..d.layers {
         for (part, outputs, inputs) in [
             (names.query, h, h),

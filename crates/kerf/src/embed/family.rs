@@ -92,6 +92,9 @@ pub struct WeightNames {
     pub down: &'static str,
     /// LayerNorm after the feed-forward.
     pub out_norm: &'static str,
+    /// The relative position bias table shared by the layers, `[buckets, heads]` (MPNet,
+    /// [`super::mpnet`]); `None`: the family has none.
+    pub relative_bias: Option<&'static str>,
 }
 
 impl WeightNames {
@@ -178,6 +181,7 @@ const fn bert_names(prefixes: &'static [&'static str]) -> WeightNames {
         up: "intermediate.dense",
         down: "output.dense",
         out_norm: "output.LayerNorm",
+        relative_bias: None,
     }
 }
 
@@ -257,6 +261,7 @@ pub const DISTILBERT: Family = Family {
         up: "ffn.lin1",
         down: "ffn.lin2",
         out_norm: "output_layer_norm",
+        relative_bias: None,
     }),
     requirements: &[
         Requirement {
@@ -271,17 +276,41 @@ pub const DISTILBERT: Family = Family {
     ],
 };
 
-/// MPNet: positions after a padding index fixed at 1 (`MPNetEmbeddings`); its encoder (relative
-/// position bias) is not run yet.
+/// MPNet: positions after a padding index fixed at 1 (`MPNetEmbeddings`), no token types, its
+/// own tensor names (`MPNetSelfAttention` q/k/v/o, `MPNetAttention.LayerNorm`) and a relative
+/// position bias added to every layer's attention scores ([`super::mpnet`]). config.json has
+/// BERT's keys; transformers' MPNetConfig defaults eps to 1e-12 (all-mpnet-base-v2 sets 1e-5).
 pub const MPNET: Family = Family {
     model_types: &["mpnet"],
-    keys: BERT_KEYS,
+    keys: ConfigKeys {
+        type_vocab: None,
+        ..BERT_KEYS
+    },
     positions: Positions::AfterPadding {
         fixed: Some(1),
         default: 1,
     },
-    weights: None,
-    requirements: BERT_REQUIREMENTS,
+    weights: Some(WeightNames {
+        prefixes: &["mpnet."],
+        word: "embeddings.word_embeddings",
+        position: "embeddings.position_embeddings",
+        token_type: None,
+        embed_norm: "embeddings.LayerNorm",
+        layers: "encoder.layer",
+        query: "attention.attn.q",
+        key: "attention.attn.k",
+        value: "attention.attn.v",
+        attn_out: "attention.attn.o",
+        attn_norm: "attention.LayerNorm",
+        up: "intermediate.dense",
+        down: "output.dense",
+        out_norm: "output.LayerNorm",
+        relative_bias: Some("encoder.relative_attention_bias"),
+    }),
+    requirements: &[Requirement {
+        key: "hidden_act",
+        runs: &[ConfigValue::Str("gelu")],
+    }],
 };
 
 /// Every family kerf knows, run or only read.
@@ -400,7 +429,7 @@ mod tests {
         }
         assert_eq!(
             runnable_model_types(),
-            ["bert", "roberta", "xlm-roberta", "distilbert"]
+            ["bert", "roberta", "xlm-roberta", "distilbert", "mpnet"]
         );
     }
 

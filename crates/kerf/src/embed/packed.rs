@@ -407,11 +407,18 @@ pub fn load(
             out_norm: norm(&name(names.out_norm))?,
         });
     }
+    let relative_bias = match names.relative_bias {
+        Some(b) => Some(
+            RelativeBias::new(&get(&format!("{b}.weight"))?, dims.heads, dims.positions)
+                .map_err(|e| format!("tensor `{b}.weight` {e}"))?,
+        ),
+        None => None,
+    };
     Ok(PackedModel {
         dims,
         embeddings,
         layers,
-        relative_bias: None,
+        relative_bias,
     })
 }
 
