@@ -11,6 +11,10 @@
 //! Besides throughput it prints the floating-point work done (matrix products and attention,
 //! counted from the model's sizes and each input's length), so the caller can compare the rate
 //! with the machine's measured matrix-product peak.
+//!
+//! With `KERF_BENCH_VECTORS=PATH` set it also writes the timed run's vectors to PATH, row after
+//! row in input order, as little-endian f32 (scripts/bench-engines compares them with other
+//! engines' vectors of the same texts).
 #[path = "common/texts.rs"]
 mod texts;
 use std::time::Instant;
@@ -71,8 +75,17 @@ fn main() -> anyhow::Result<()> {
     e.embed(&refs[..refs.len().min(16)])?; // warm-up
     let before = e.stats();
     let t = Instant::now();
-    e.embed(&refs)?;
+    let vectors = e.embed(&refs)?;
     let secs = t.elapsed().as_secs_f64();
+    if let Some(out) = std::env::var_os("KERF_BENCH_VECTORS") {
+        let bytes: Vec<u8> = vectors
+            .iter()
+            .flatten()
+            .flat_map(|x| x.to_le_bytes())
+            .collect();
+        std::fs::write(&out, bytes)
+            .map_err(|err| anyhow::anyhow!("cannot write {}: {err}", out.to_string_lossy()))?;
+    }
     let s = e.stats();
     let real = s.real_tokens - before.real_tokens;
     let padded = s.padded_tokens - before.padded_tokens;
@@ -88,6 +101,7 @@ fn main() -> anyhow::Result<()> {
             "gflops_per_second": flops / secs / 1e9,
             "engine": format!("{engine:?}").to_lowercase(),
             "precision": format!("{precision:?}").to_lowercase(),
+            "dimensions": vectors.first().map_or(0, Vec::len),
         })
     );
     Ok(())
