@@ -42,7 +42,6 @@ def read_texts(path):
 
 def worker_st(texts_path, threads, vectors_out):
     os.environ.setdefault("HF_HUB_OFFLINE", "1")
-    import numpy as np
     import sentence_transformers
     import torch
     from sentence_transformers import SentenceTransformer
@@ -52,18 +51,22 @@ def worker_st(texts_path, threads, vectors_out):
     texts = read_texts(texts_path)
     m = SentenceTransformer(model_dir(), device="cpu")
     assert m.max_seq_length == MAX_TOKENS, m.max_seq_length
-    m.encode(texts[:16])
     tokens = sum(min(len(m.tokenizer(t)["input_ids"]), m.max_seq_length) for t in texts)
+    version = f"sentence-transformers {sentence_transformers.__version__}, torch {torch.__version__}"
+    return timed_run(lambda ts: m.encode(ts, batch_size=BATCH, convert_to_numpy=True), texts, tokens, vectors_out, version)
+
+
+def timed_run(encode, texts, tokens, vectors_out, version):
+    """Warm `encode` up on a few texts, time it over all of them, write the vectors as
+    little-endian f32 to VECTORS_OUT and return the worker's report."""
+    import numpy as np
+
+    encode(texts[:16])
     t = time.perf_counter()
-    v = m.encode(texts, batch_size=BATCH, convert_to_numpy=True)
+    v = encode(texts)
     s = time.perf_counter() - t
     np.ascontiguousarray(v, dtype="<f4").tofile(vectors_out)
-    return {
-        "tokens": tokens,
-        "seconds": s,
-        "dimensions": int(v.shape[1]),
-        "version": f"sentence-transformers {sentence_transformers.__version__}, torch {torch.__version__}",
-    }
+    return {"tokens": tokens, "seconds": s, "dimensions": int(v.shape[1]), "version": version}
 
 
 def worker_ort(texts_path, threads, vectors_out, onnx_path):
@@ -104,18 +107,8 @@ def worker_ort(texts_path, threads, vectors_out, onnx_path):
                 rows[i] = row
         return np.stack(rows).astype(np.float32)
 
-    encode(texts[:16])
     tokens = sum(min(len(ids), MAX_TOKENS) for ids in tok(texts, truncation=True, max_length=MAX_TOKENS)["input_ids"])
-    t = time.perf_counter()
-    v = encode(texts)
-    s = time.perf_counter() - t
-    np.ascontiguousarray(v, dtype="<f4").tofile(vectors_out)
-    return {
-        "tokens": tokens,
-        "seconds": s,
-        "dimensions": int(v.shape[1]),
-        "version": f"onnxruntime {ort.__version__}",
-    }
+    return timed_run(encode, texts, tokens, vectors_out, f"onnxruntime {ort.__version__}")
 
 
 def worker_export(cache):

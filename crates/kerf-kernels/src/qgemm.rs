@@ -158,6 +158,14 @@ pub fn quantise_row(row: &[f32], codes: &mut [u8]) -> (f32, f32) {
         .iter()
         .chain(&hi8)
         .fold(f32::NEG_INFINITY, |m, &v| m.max(v));
+    codes_in_range(row, lo, hi, codes)
+}
+
+/// The codes of `row` for the range `[lo, hi]` (the row's, or the row's without its outliers),
+/// written to `codes` (the rest zeroed); returns `(lo, step)`. Shared by both row quantisers
+/// so the fused one gives the reference's codes bit for bit.
+#[inline(always)]
+fn codes_in_range(row: &[f32], lo: f32, hi: f32, codes: &mut [u8]) -> (f32, f32) {
     let (lo, step) = if row.is_empty() {
         (0.0, 1.0)
     } else if hi > lo {
@@ -166,9 +174,9 @@ pub fn quantise_row(row: &[f32], codes: &mut [u8]) -> (f32, f32) {
         (lo, 1.0)
     };
     let inv = 1.0 / step;
-    // `v - lo` is never negative, so adding a half and truncating rounds to nearest. The
-    // largest, `(hi - lo) * inv`, is within an ulp of ACT_MAX, so it truncates to ACT_MAX (and
-    // the cast saturates at 255 in any case).
+    // `v - lo` is never negative for a value in the range, so adding a half and truncating
+    // rounds to nearest. The largest, `(hi - lo) * inv`, is within an ulp of ACT_MAX, so it
+    // truncates to ACT_MAX (and the cast saturates at 255 in any case).
     for (c, v) in codes.iter_mut().zip(row) {
         *c = ((v - lo) * inv + 0.5) as u8;
     }
@@ -422,20 +430,8 @@ pub fn split_quantise_row(
             hi = if v > hi { v } else { hi };
         }
     }
-    let (lo, step) = if row.is_empty() {
-        (0.0, 1.0)
-    } else if hi > lo {
-        (lo, (hi - lo) / ACT_MAX as f32)
-    } else {
-        (lo, 1.0)
-    };
-    let inv = 1.0 / step;
-    // As in quantise_row: `v - lo` is never negative for a value in the range.
-    for (c, v) in codes.iter_mut().zip(row) {
-        *c = ((v - lo) * inv + 0.5) as u8;
-    }
-    codes[row.len()..].fill(0);
-    let zero = ((0.0 - lo) * inv + 0.5) as u8;
+    let (lo, step) = codes_in_range(row, lo, hi, codes);
+    let zero = ((0.0 - lo) * (1.0 / step) + 0.5) as u8;
     for &(i, _) in taken {
         codes[i as usize] = zero;
     }
