@@ -27,12 +27,7 @@ fn vectors_match_sentence_transformers() {
     let got = e.embed(&texts).unwrap();
     let mut worst = 1.0f32;
     for (t, v) in items.iter().zip(&got) {
-        let want: Vec<f32> = t["vector"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|x| x.as_f64().unwrap() as f32)
-            .collect();
+        let want = common::f32s(&t["vector"]);
         let c = cosine(v, &want);
         worst = worst.min(c);
         assert!(

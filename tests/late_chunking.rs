@@ -79,12 +79,7 @@ fn pooled_spans_match_sentence_transformers_token_embeddings() {
         let mut worst = 1.0f32;
         for (t, vs) in items.iter().zip(&got) {
             for (want, v) in t["vectors"].as_array().unwrap().iter().zip(vs) {
-                let want: Vec<f32> = want
-                    .as_array()
-                    .unwrap()
-                    .iter()
-                    .map(|x| x.as_f64().unwrap() as f32)
-                    .collect();
+                let want = common::f32s(want);
                 worst = worst.min(cosine(&want, v.as_ref().expect("every chunk has tokens")));
             }
         }

@@ -44,14 +44,6 @@ fn encoder(max_input_tokens: usize, precision: Precision, raw_rows: bool) -> Ber
     .unwrap()
 }
 
-fn floats(v: &serde_json::Value) -> Vec<f32> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap() as f32)
-        .collect()
-}
-
 /// Worst (sentence, token) cosine of `precision` against the fixture, every check at `bar`s.
 fn worst_against_fixture(precision: Precision, sentence_bar: f32, token_bar: f32) -> (f32, f32) {
     let f = common::fixture("mpnet_st.json");
@@ -71,7 +63,7 @@ fn worst_against_fixture(precision: Precision, sentence_bar: f32, token_bar: f32
         for (t, v) in texts.iter().zip(&got) {
             let n = t["ids"].as_array().unwrap().len();
             // Sentence vector: mean pooling, normalised, as the folder declares.
-            let c = cosine(v, &floats(&t["sentence"]));
+            let c = cosine(v, &common::f32s(&t["sentence"]));
             worst_sentence = worst_sentence.min(c);
             assert!(
                 c >= sentence_bar,
@@ -79,18 +71,8 @@ fn worst_against_fixture(precision: Precision, sentence_bar: f32, token_bar: f32
             );
             assert!((v.iter().map(|x| x * x).sum::<f32>() - 1.0).abs() < 1e-4);
             // Token vectors: the rows of the fixture's ids, run as one pass.
-            let ids: Vec<u32> = t["ids"]
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|x| x.as_u64().unwrap() as u32)
-                .collect();
-            let wanted: Vec<usize> = t["rows"]
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|x| x.as_u64().unwrap() as usize)
-                .collect();
+            let ids: Vec<u32> = common::uints(&t["ids"]);
+            let wanted: Vec<usize> = common::uints(&t["rows"]);
             let pass = SpanPass {
                 ids: ids[1..n - 1].to_vec(),
                 spans: wanted.iter().map(|&r| r..r + 1).collect(),
@@ -101,7 +83,7 @@ fn worst_against_fixture(precision: Precision, sentence_bar: f32, token_bar: f32
                 .zip(&out[0])
                 .zip(t["token_rows"].as_array().unwrap())
             {
-                let c = cosine(got, &floats(want));
+                let c = cosine(got, &common::f32s(want));
                 worst_token = worst_token.min(c);
                 assert!(
                     c >= token_bar,
@@ -146,12 +128,7 @@ fn tokens_and_conventions_follow_the_folder() {
     let f = common::fixture("mpnet_st.json");
     for t in f["texts"].as_array().unwrap() {
         let text = t["text"].as_str().unwrap();
-        let want: Vec<u32> = t["ids"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|x| x.as_u64().unwrap() as u32)
-            .collect();
+        let want: Vec<u32> = common::uints(&t["ids"]);
         let content = e.token_ids(text).unwrap().unwrap().ids;
         let n = want.len();
         assert_eq!((want[0], want[n - 1]), (0, 2), "<s> ... </s>");

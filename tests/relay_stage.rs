@@ -174,12 +174,7 @@ fn relay_lines_hold_the_folder_outputs_chunks_and_vector_bits() {
         arrays.iter().filter(|l| l["kind"] == "chunk").collect();
     assert_eq!(array_chunks.len(), records.len());
     for (k, l) in array_chunks.iter().enumerate() {
-        let v: Vec<f32> = l["vector"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|x| x.as_f64().unwrap() as f32)
-            .collect();
+        let v = common::f32s(&l["vector"]);
         assert_eq!(bits(&v), bits(&chunk_vectors[k * dim..(k + 1) * dim]));
     }
 }

@@ -11,6 +11,7 @@ mod common;
 
 use std::path::PathBuf;
 
+use common::{f32s, uints};
 use kerf::embed::family::{self, Family};
 use kerf::embed::{
     packed, BertEmbedder, EmbedOptions, Embedder, Engine, Precision, SpanPass, TokenPooling,
@@ -40,28 +41,10 @@ fn text(all: &Value, key: &str) -> String {
     all["_texts"][key].as_str().unwrap().to_string()
 }
 
-fn floats(v: &Value) -> Vec<f32> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap() as f32)
-        .collect()
-}
-
-fn ids(v: &Value) -> Vec<u32> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_u64().unwrap() as u32)
-        .collect()
-}
-
+/// kerf's cosine ([`kerf::pool::cosine`]) of two vectors that must have the same width.
 fn cosine(a: &[f32], b: &[f32]) -> f64 {
     assert_eq!(a.len(), b.len());
-    let dot: f64 = a.iter().zip(b).map(|(x, y)| *x as f64 * *y as f64).sum();
-    let na: f64 = a.iter().map(|x| (*x as f64).powi(2)).sum::<f64>().sqrt();
-    let nb: f64 = b.iter().map(|x| (*x as f64).powi(2)).sum::<f64>().sqrt();
-    dot / (na * nb)
+    f64::from(kerf::pool::cosine(a, b))
 }
 
 /// The embedder as the CLI builds it: truncation at the usable positions.
@@ -94,15 +77,12 @@ fn worst_token_cosine(e: &dyn Embedder, want: &Value) -> f64 {
     let mut worst = 1.0f64;
     for key in TEXTS {
         let t = &want["texts"][key];
-        let input = ids(&t["input_ids"]);
+        let input: Vec<u32> = uints(&t["input_ids"]);
         // The content between the specials (the embedder puts its own specials around it).
         let pass = SpanPass {
             ids: input[1..input.len() - 1].to_vec(),
-            spans: t["rows"]
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|r| r.as_u64().unwrap() as usize)
+            spans: uints::<usize>(&t["rows"])
+                .into_iter()
                 .map(|r| r..r + 1)
                 .collect(),
         };
@@ -110,7 +90,7 @@ fn worst_token_cosine(e: &dyn Embedder, want: &Value) -> f64 {
         let rows = t["token_vectors"].as_array().unwrap();
         assert_eq!(got.len(), rows.len());
         for (g, w) in got.iter().zip(rows) {
-            worst = worst.min(cosine(g, &floats(w)));
+            worst = worst.min(cosine(g, &f32s(w)));
         }
     }
     worst
@@ -125,7 +105,7 @@ fn worst_sentence_cosine(e: &dyn Embedder, all: &Value, want: &Value) -> f64 {
     TEXTS
         .iter()
         .zip(&got)
-        .map(|(k, g)| cosine(g, &floats(&want["texts"][k]["sentence_vector"])))
+        .map(|(k, g)| cosine(g, &f32s(&want["texts"][k]["sentence_vector"])))
         .fold(1.0, f64::min)
 }
 
@@ -203,7 +183,7 @@ fn tokens_specials_truncation_and_limits_follow_each_folders_tokenizer() {
             // Content ids and their UTF-8 byte offsets (add_special_tokens=False,
             // return_offsets_mapping), as late chunking reads them.
             let got = e.token_ids(&s).unwrap().unwrap();
-            assert_eq!(got.ids, ids(&t["content_ids"]), "{name} {key}");
+            assert_eq!(got.ids, uints::<u32>(&t["content_ids"]), "{name} {key}");
             let offsets: Vec<std::ops::Range<usize>> = t["content_byte_offsets"]
                 .as_array()
                 .unwrap()
@@ -213,7 +193,7 @@ fn tokens_specials_truncation_and_limits_follow_each_folders_tokenizer() {
             assert_eq!(got.offsets, offsets, "{name} {key}");
             // sentence-transformers' truncated input: the head of the content with the
             // closing special restored, 512 in all.
-            let input = ids(&t["input_ids"]);
+            let input: Vec<u32> = uints(&t["input_ids"]);
             let content = &got.ids[..input.len() - 2];
             assert_eq!(&input[1..input.len() - 1], content, "{name} {key}");
         }
@@ -245,7 +225,7 @@ fn packed_model(name: &str) -> (packed::PackedModel, &'static Family) {
 /// Worst cosine of the packed model's rows for the English text against the reference rows.
 fn worst_rows(model: &packed::PackedModel, want: &Value) -> f64 {
     let t = &want["texts"]["english"];
-    let input = ids(&t["input_ids"]);
+    let input: Vec<u32> = uints(&t["input_ids"]);
     let h = model.dims.hidden;
     let out = model.forward(&[&input], 1);
     t["token_vectors"]
@@ -253,7 +233,7 @@ fn worst_rows(model: &packed::PackedModel, want: &Value) -> f64 {
         .unwrap()
         .iter()
         .enumerate()
-        .map(|(r, w)| cosine(&out[r * h..(r + 1) * h], &floats(w)))
+        .map(|(r, w)| cosine(&out[r * h..(r + 1) * h], &f32s(w)))
         .fold(1.0, f64::min)
 }
 
@@ -412,7 +392,7 @@ fn kerf_embed_runs_a_roberta_folder_end_to_end() {
         kerf::store::read_npy_f32(&std::fs::read(d.join("out/chunk_vectors.npy")).unwrap())
             .unwrap();
     assert_eq!((rows, cols), (1, 32));
-    let want = floats(&all["roberta"]["texts"]["english"]["sentence_vector"]);
+    let want = f32s(&all["roberta"]["texts"]["english"]["sentence_vector"]);
     let c = cosine(&data, &want);
     assert!(
         c >= F32_BAR,

@@ -34,6 +34,28 @@ pub fn fixture(name: &str) -> serde_json::Value {
         .unwrap_or_else(|e| panic!("{}: {e}", path.display()))
 }
 
+/// A fixture's JSON array of numbers as f32 (the reference scripts write vectors so).
+pub fn f32s(v: &serde_json::Value) -> Vec<f32> {
+    v.as_array()
+        .unwrap_or_else(|| panic!("not an array: {v}"))
+        .iter()
+        .map(|x| x.as_f64().unwrap() as f32)
+        .collect()
+}
+
+/// A fixture's JSON array of non-negative integers (token ids, row numbers).
+pub fn uints<T: TryFrom<u64>>(v: &serde_json::Value) -> Vec<T> {
+    v.as_array()
+        .unwrap_or_else(|| panic!("not an array: {v}"))
+        .iter()
+        .map(|x| {
+            x.as_u64()
+                .and_then(|n| T::try_from(n).ok())
+                .unwrap_or_else(|| panic!("not a small non-negative integer: {x}"))
+        })
+        .collect()
+}
+
 /// The repository root.
 pub fn repo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))

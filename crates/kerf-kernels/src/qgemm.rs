@@ -242,6 +242,25 @@ pub const ROW_OUTLIERS: usize = 4;
 /// A row's entries kept in f32: `(index, value)`, value 0 where the row is shorter.
 pub type Outliers = [(u32, f32); ROW_OUTLIERS];
 
+/// Offer entry `i` of value `v` to a row's outliers `top[..*count]`, kept sorted by magnitude,
+/// largest first; entries are offered in index order, so on a tie the earlier one stays.
+#[inline(always)]
+fn offer(top: &mut Outliers, count: &mut usize, i: u32, v: f32) {
+    if *count < ROW_OUTLIERS {
+        top[*count] = (i, v);
+        *count += 1;
+    } else if v.abs() > top[ROW_OUTLIERS - 1].1.abs() {
+        top[ROW_OUTLIERS - 1] = (i, v);
+    } else {
+        return;
+    }
+    let mut j = *count - 1;
+    while j > 0 && top[j].1.abs() > top[j - 1].1.abs() {
+        top.swap(j, j - 1);
+        j -= 1;
+    }
+}
+
 /// The [`ROW_OUTLIERS`] entries of `row` of largest magnitude (the first such on ties), and
 /// `row` with them set to zero in `rest` (which it is copied into).
 ///
@@ -272,24 +291,8 @@ pub fn split_row(row: &[f32], rest: &mut Vec<f32>) -> Outliers {
             continue;
         }
         for (l, &v) in c.iter().enumerate() {
-            let a = v.abs();
-            if a < floor {
-                continue;
-            }
-            let i = (r * 8 + l) as u32;
-            if count < ROW_OUTLIERS {
-                top[count] = (i, v);
-                count += 1;
-            } else if a > top[ROW_OUTLIERS - 1].1.abs() {
-                top[ROW_OUTLIERS - 1] = (i, v);
-            } else {
-                continue;
-            }
-            // Keep `top[..count]` sorted by magnitude, largest first.
-            let mut j = count - 1;
-            while j > 0 && top[j].1.abs() > top[j - 1].1.abs() {
-                top.swap(j, j - 1);
-                j -= 1;
+            if v.abs() >= floor {
+                offer(&mut top, &mut count, (r * 8 + l) as u32, v);
             }
         }
     }
@@ -364,23 +367,8 @@ pub fn split_quantise_row(
             return;
         }
         for (l, &v) in c.iter().enumerate() {
-            let a = v.abs();
-            if a < floor {
-                continue;
-            }
-            let i = (first + l) as u32;
-            if count < ROW_OUTLIERS {
-                top[count] = (i, v);
-                count += 1;
-            } else if a > top[ROW_OUTLIERS - 1].1.abs() {
-                top[ROW_OUTLIERS - 1] = (i, v);
-            } else {
-                continue;
-            }
-            let mut j = count - 1;
-            while j > 0 && top[j].1.abs() > top[j - 1].1.abs() {
-                top.swap(j, j - 1);
-                j -= 1;
+            if v.abs() >= floor {
+                offer(&mut top, &mut count, (first + l) as u32, v);
             }
         }
     };

@@ -40,13 +40,6 @@ pub enum ModelError {
     },
 }
 
-/// Model families (config.json `model_type`) whose encoder kerf runs: those
-/// [`crate::embed::family::FAMILIES`] maps the weights of (other known families, such as MPNet,
-/// are read, surveyed and cut with their position offsets, but not embedded).
-pub fn supported_architectures() -> Vec<&'static str> {
-    crate::embed::family::runnable_model_types()
-}
-
 /// Token pooling modes kerf's encoder applies (names as profiles and reports spell them).
 pub const RUNNABLE_POOLING: &[&str] = &["mean", "cls", "max", "mean-sqrt-len"];
 
@@ -332,7 +325,9 @@ impl ModelInfo {
             ));
             return why;
         }
-        let supported = supported_architectures();
+        // Families kerf runs ([`crate::embed::family::FAMILIES`] maps their weights); other
+        // known ones (CamemBERT) are read, surveyed and cut with their position offsets.
+        let supported = crate::embed::family::runnable_model_types();
         if !supported.contains(&self.model_type.as_str()) {
             why.push(format!(
                 "config.json: architecture `{}` (model_type) is not one kerf runs; supported: {}",

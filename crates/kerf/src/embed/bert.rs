@@ -1,6 +1,6 @@
 //! The encoder on CPU: tokenizer, memory-mapped weights, forward pass, pooling over the
 //! attention mask, normalisation. The packed engine runs every family [`super::family`] maps
-//! (BERT, RoBERTa, XLM-RoBERTa, DistilBERT); the candle engine, kept as the reference, runs
+//! (BERT, RoBERTa, XLM-RoBERTa, DistilBERT, MPNet); the candle engine, kept as the reference, runs
 //! BERT.
 use std::path::Path;
 use std::sync::Mutex;
@@ -125,12 +125,10 @@ fn expected_shapes(d: &packed::Dims, names: &WeightNames) -> Vec<(String, Vec<us
 
 fn check_tensors(
     path: &Path,
-    bytes: &[u8],
+    st: &safetensors::SafeTensors<'_>,
     dims: &packed::Dims,
     names: &WeightNames,
 ) -> Result<(), EmbedError> {
-    let st = safetensors::SafeTensors::deserialize(bytes)
-        .map_err(|e| file_err(path, format!("not a safetensors file: {e}")))?;
     let present: std::collections::HashSet<String> =
         st.names().into_iter().map(String::from).collect();
     for (name, shape) in expected_shapes(dims, names) {
@@ -198,9 +196,7 @@ impl BertEmbedder {
             .dims(&info.config)
             .map_err(|e| file_err(&cfg_path, e))?;
         let padding_idx = family.padding_idx(info.pad_token_id);
-        let usable = dims
-            .positions
-            .saturating_sub(family.position_offset(info.pad_token_id));
+        let usable = info.usable_positions();
         if opts.max_input_tokens == 0 || opts.max_input_tokens > usable {
             return Err(EmbedError::Mismatch(format!(
                 "max_input_tokens {} must be between 1 and the model's {usable} usable positions",
@@ -212,7 +208,9 @@ impl BertEmbedder {
         // SAFETY: the weights file is mapped read-only and not modified while the model lives;
         // this is the one memory-mapped load the project allows.
         let mmap = unsafe { memmap2::Mmap::map(&file) }.map_err(|e| file_err(&weights_path, e))?;
-        check_tensors(&weights_path, &mmap, &dims, names)?;
+        let st = safetensors::SafeTensors::deserialize(&mmap)
+            .map_err(|e| file_err(&weights_path, format!("not a safetensors file: {e}")))?;
+        check_tensors(&weights_path, &st, &dims, names)?;
         family
             .check_heads(&dims)
             .map_err(|e| file_err(&cfg_path, e))?;
@@ -289,7 +287,7 @@ impl BertEmbedder {
                         options.join("; ")
                     )));
                 }
-                let model = packed::load_bytes(&mmap, dims, names, padding_idx, opts.precision)
+                let model = packed::load(&st, dims, names, padding_idx, opts.precision)
                     .map_err(|e| file_err(&weights_path, e))?;
                 Runner::Packed(model)
             }

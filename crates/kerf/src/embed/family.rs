@@ -1,7 +1,7 @@
 //! Encoder families: everything that differs between the encoder architectures kerf reads, in
 //! one table.
 //!
-//! BERT, RoBERTa, XLM-RoBERTa and DistilBERT are the same post-LayerNorm transformer encoder
+//! BERT, RoBERTa, XLM-RoBERTa, DistilBERT and MPNet are the same post-LayerNorm transformer encoder
 //! (embeddings summed and normalised, then layers of self-attention and a GELU feed-forward, each
 //! followed by residual + LayerNorm). What differs is data: the config.json key names, where
 //! position ids start, whether a token-type table exists, the tensor names, and config options
@@ -12,8 +12,8 @@
 //! To add a family: add a [`Family`] constant to [`FAMILIES`]. With `weights: None` its folders
 //! are read and planned for (position offset included) but refused for embedding; with a
 //! [`WeightNames`] map the packed encoder loads and runs it. A family whose forward pass
-//! differs (e.g. MPNet's relative position bias) also needs a field here saying so and the
-//! packed engine reading it.
+//! differs needs a field here saying so and the packed engine reading it, as MPNet's relative
+//! position bias has ([`WeightNames::relative_bias`]).
 //!
 //! Sources (transformers, from memory and checked against transformers 5.24 by
 //! tests/reference/tiny_families.py): `BertModel`, `RobertaModel`, `XLMRobertaModel`

@@ -4,7 +4,7 @@
 //! the model through the [`Embedder`] trait, so it is tested fast with the model-free
 //! [`HashEmbedder`] and run for real with [`BertEmbedder`], a CPU forward pass over a
 //! checkpoint of one of the families in [`family`]: BERT (MiniLM, BGE-small, E5-small and
-//! GTE-small share it), RoBERTa, XLM-RoBERTa and DistilBERT.
+//! GTE-small share it), RoBERTa, XLM-RoBERTa, DistilBERT and MPNet.
 mod bert;
 pub mod family;
 pub use kerf_kernels as kernels;

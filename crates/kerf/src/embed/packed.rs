@@ -1,5 +1,6 @@
-//! The packed encoder: a BERT-style forward pass (BERT, RoBERTa, XLM-RoBERTa, DistilBERT: the
-//! differences are data in [`super::family`]) over sequences laid end to end, with no padding.
+//! The packed encoder: a BERT-style forward pass (BERT, RoBERTa, XLM-RoBERTa, DistilBERT and
+//! MPNet: the differences are data in [`super::family`], plus MPNet's relative position bias in
+//! attention) over sequences laid end to end, with no padding.
 //!
 //! The stock candle model pads every batch to its longest input and runs attention over the
 //! padded square. Here a batch is one `[tokens, hidden]` matrix holding every sequence's rows
