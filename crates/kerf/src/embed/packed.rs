@@ -200,14 +200,15 @@ impl PackedModel {
         hidden
     }
 
-    /// [`forward`](Self::forward) with the sequences cut into `threads` runs of about equal
-    /// token counts, each run's products on one thread and the runs in parallel: no thread
-    /// waits at the end of every product for the other, as it does when each product is
-    /// shared. Rows come back in input order and equal `forward`'s bit for bit: every row's
-    /// arithmetic is the same whichever run it is in.
+    /// [`forward`](Self::forward) with the sequences cut into [`RUNS_PER_THREAD`] runs a
+    /// thread, of about equal token counts, each run's products on one thread and the runs
+    /// handed out to the threads as they come free: no thread waits at the end of every product
+    /// for the other, as it does when each product is shared, and a core slowed by other work
+    /// takes fewer runs. Rows come back in input order and equal `forward`'s bit for bit: every
+    /// row's arithmetic is the same whichever run it is in.
     pub fn forward_shared_out(&self, seqs: &[&[u32]], threads: usize) -> Vec<f32> {
         let lens: Vec<usize> = seqs.iter().map(|s| s.len()).collect();
-        let runs = split_by_tokens(&lens, threads);
+        let runs = split_by_tokens(&lens, threads * RUNS_PER_THREAD);
         if runs.len() <= 1 {
             return self.forward(seqs, threads);
         }
@@ -423,9 +424,17 @@ pub fn load(
     })
 }
 
+/// Runs of a batch per thread in [`PackedModel::forward_shared_out`]. One run a thread left
+/// the encoder about 6% slower than four (the two cores of the bench machine differ in speed
+/// from minute to minute, and a fixed half cannot follow that); eight measured the same as
+/// four (notes/encoder-speed.md, step 11).
+pub const RUNS_PER_THREAD: usize = 4;
+
 /// Cut `lens` (tokens per sequence, in order) into at most `parts` contiguous non-empty runs
-/// whose token sums are as even as whole sequences allow: each run ends at the first
-/// sequence that takes it to its share of the total.
+/// whose token sums are as even as whole sequences allow: each run ends at the sequence
+/// boundary nearest its share of the total. (Ending it at the first boundary that reaches the
+/// share gave the first of two runs one sequence too many whenever lengths were even: 17 of
+/// 32 sequences of about 253 tokens.)
 pub fn split_by_tokens(lens: &[usize], parts: usize) -> Vec<std::ops::Range<usize>> {
     let total: usize = lens.iter().sum();
     let parts = parts.clamp(1, lens.len().max(1));
@@ -433,10 +442,18 @@ pub fn split_by_tokens(lens: &[usize], parts: usize) -> Vec<std::ops::Range<usiz
     let (mut start, mut acc) = (0, 0);
     for (i, len) in lens.iter().enumerate() {
         acc += len;
-        // Run `runs.len()` closes once the running sum reaches its share of the total.
-        if runs.len() + 1 < parts && acc * parts >= total * (runs.len() + 1) {
-            runs.push(start..i + 1);
-            start = i + 1;
+        // Run `runs.len()` closes once the running sum reaches its share of the total: after
+        // this sequence, or before it when that is nearer the share (all scaled by `parts`).
+        let share = total * (runs.len() + 1);
+        if runs.len() + 1 < parts && acc * parts >= share {
+            let past = acc * parts - share;
+            let end = if 2 * past > len * parts && i > start {
+                i
+            } else {
+                i + 1
+            };
+            runs.push(start..end);
+            start = end;
         }
     }
     if start < lens.len() || runs.is_empty() {
@@ -526,6 +543,10 @@ mod tests {
         assert_eq!(split_by_tokens(&[7], 2), vec![0..1]);
         assert_eq!(split_by_tokens(&[], 2), vec![0..0]);
         assert_eq!(split_by_tokens(&[3, 4], 1), vec![0..2]);
+        // Even lengths split in the middle, not one past it.
+        assert_eq!(split_by_tokens(&[253; 32], 2), vec![0..16, 16..32]);
+        assert_eq!(split_by_tokens(&[1; 7], 3), vec![0..2, 2..5, 5..7]);
+        assert_eq!(split_by_tokens(&[1; 9], 8).len(), 8);
         // Many lengths: runs are contiguous, non-empty and cover everything; no run exceeds
         // its even share by more than one sequence.
         let lens: Vec<usize> = (0..97).map(|i| 20 + (i * 37) % 230).collect();
