@@ -106,25 +106,29 @@ fn packed_engine_agrees_with_stock_candle_for_every_token_pooling() {
 
 #[test]
 fn vectors_are_the_same_bits_on_one_thread_and_on_three() {
-    // With more than one thread each thread encodes its own run of the batch
-    // (PackedModel::forward_shared_out); every row's arithmetic is the same as on one thread,
-    // so the vectors must be identical, not merely close (the resumable job relies on it).
+    // With more than one thread the batch is cut into runs, four per thread, each encoded on
+    // one thread (PackedModel::forward_shared_out); every row's arithmetic is the same as on
+    // one thread (int8 quantises each row on its own), so the vectors must be identical, not
+    // merely close (the resumable job relies on it).
     let texts = fixture_texts();
     let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
-    let with = |threads| {
-        BertEmbedder::load(
-            &common::model_dir(),
-            &EmbedOptions {
-                max_input_tokens: 256,
-                threads,
-                ..Default::default()
-            },
-        )
-        .unwrap()
-        .embed(&refs)
-        .unwrap()
-    };
-    assert_eq!(with(1), with(3));
+    for precision in [Precision::F32, Precision::Int8] {
+        let with = |threads| {
+            BertEmbedder::load(
+                &common::model_dir(),
+                &EmbedOptions {
+                    max_input_tokens: 256,
+                    threads,
+                    precision,
+                    ..Default::default()
+                },
+            )
+            .unwrap()
+            .embed(&refs)
+            .unwrap()
+        };
+        assert_eq!(with(1), with(3), "{precision:?}");
+    }
 }
 
 /// Cosine of each fixture text's mean-pooled vector at `precision` to its f32 vector.
