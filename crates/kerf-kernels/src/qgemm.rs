@@ -19,10 +19,15 @@
 //! panels of `NR` = 16 columns by groups of four inner steps, so one 32-byte load holds eight
 //! columns' four steps and one broadcast 32-bit word holds a row's four activations.
 //!
-//! Safe Rust throughout: the AVX2 tile takes `pulp`'s `V3` token, which exists only once the
-//! CPU has been seen to have AVX2 and whose `vectorize` compiles the closure for it, so the
-//! choice is made at run time, once a block; vectors are filled from and emptied to arrays
-//! through `bytemuck`.
+//! Where the CPU has AVX-512 VNNI with 256-bit vectors (AVX512VL), one `vpdpbusd` does the
+//! multiply, the sums of four and the accumulation ([`tile_vnni`]). It takes the same codes and
+//! gives the same integers, so the vectors do not depend on which tile ran.
+//!
+//! The choice is made at run time, once a block: each tile takes a `pulp` token (`V3`, or
+//! [`V3Vnni`] defined here) that exists only once the CPU has been seen to have the features,
+//! and whose `vectorize` compiles the closure for them. Safe Rust but for one intrinsic call
+//! `pulp` does not wrap (`vpdpbusd`, in [`tile_vnni`]); vectors are filled from and emptied to
+//! arrays through `bytemuck`.
 #[cfg(target_arch = "x86_64")]
 use pulp::x86::V3;
 use rayon::prelude::*;
@@ -441,8 +446,8 @@ pub fn split_quantise_row(
 }
 
 /// One block of at most `MC` rows: quantise them, then every tile, then the epilogue while the
-/// block is in cache. The tiles run on the AVX2 kernel where the CPU has AVX2, else on the
-/// portable one; both give the same integers.
+/// block is in cache. The tiles run on the VNNI kernel where the CPU has it, else on the AVX2
+/// kernel where it has AVX2, else on the portable one; all three give the same integers.
 fn block_i8(
     dst: &mut [f32],
     rows: &[f32],
@@ -465,14 +470,24 @@ fn block_i8(
     epilogue.apply(dst);
 }
 
-/// [`quantise_block`] and [`all_tiles`] on the AVX2 tile, compiled for AVX2, when the CPU has
-/// it; `false` (nothing done) when it does not.
+/// [`quantise_block`] and [`all_tiles`] on the VNNI tile or the AVX2 tile, compiled for the
+/// features each needs, when the CPU has them; `false` (nothing done) when it has neither.
 #[cfg(target_arch = "x86_64")]
 fn quantise_and_tile_avx2(dst: &mut [f32], rows: &[f32], rhs: &PackedI8, s: &mut Scratch) -> bool {
+    let (k, kp) = (rhs.k, rhs.k_padded);
+    if let Some(vnni) = V3Vnni::try_new() {
+        vnni.vectorize(|| {
+            quantise_block(rows, k, kp, s);
+            all_tiles(dst, rhs, s, |sliver, panel| {
+                tile_vnni(vnni, sliver, kp, panel)
+            });
+            add_outliers(dst, rhs, &s.outliers);
+        });
+        return true;
+    }
     let Some(simd) = V3::try_new() else {
         return false;
     };
-    let (k, kp) = (rhs.k, rhs.k_padded);
     simd.vectorize(|| {
         quantise_block(rows, k, kp, s);
         all_tiles(dst, rhs, s, |sliver, panel| {
@@ -616,6 +631,78 @@ pub fn tile_avx2(simd: V3, sliver: &[u8], kp: usize, panel: &[i8]) -> [[i32; NR]
     // code without AVX, with a `vzeroupper` and a round trip through the stack each time: about
     // 6% of the int8 encoder's samples.)
     bytemuck::cast(acc)
+}
+
+#[cfg(target_arch = "x86_64")]
+pulp::simd_type! {
+    /// AVX2 and, on 256-bit vectors (AVX512VL), AVX-512 VNNI's `vpdpbusd`: x86-64-v3 with the
+    /// few AVX-512 features the int8 tile uses, so it runs on any CPU that has VNNI that way
+    /// (Intel since Cascade Lake, AMD since Zen 4). Built only once the CPU has been seen to
+    /// have them all.
+    pub struct V3Vnni {
+        pub sse: "sse",
+        pub sse2: "sse2",
+        pub fxsr: "fxsr",
+        pub sse3: "sse3",
+        pub ssse3: "ssse3",
+        pub sse4_1: "sse4.1",
+        pub sse4_2: "sse4.2",
+        pub popcnt: "popcnt",
+        pub avx: "avx",
+        pub avx2: "avx2",
+        pub bmi1: "bmi1",
+        pub bmi2: "bmi2",
+        pub fma: "fma",
+        pub lzcnt: "lzcnt",
+        pub avx512f: "avx512f",
+        pub avx512vl: "avx512vl",
+        pub avx512vnni: "avx512vnni",
+    }
+}
+
+/// The same tile as [`tile_avx2`] with one `vpdpbusd` per register and step: it multiplies
+/// u8 by i8, sums each four into int32 and accumulates, where AVX2 needs three instructions
+/// and an int16 step. Same codes, same integers (tested), so a CPU with VNNI gives the same
+/// vectors as one without.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+pub fn tile_vnni(simd: V3Vnni, sliver: &[u8], kp: usize, panel: &[i8]) -> [[i32; NR]; MR] {
+    let groups = kp / 4;
+    assert!(sliver.len() >= MR * kp && panel.len() >= groups * 4 * NR);
+    let [r0, r1, r2, r3]: [&[u8]; MR] = std::array::from_fn(|r| &sliver[r * kp..(r + 1) * kp]);
+    let steps = panel[..groups * 4 * NR]
+        .chunks_exact(4 * NR)
+        .zip(r0.chunks_exact(4))
+        .zip(r1.chunks_exact(4))
+        .zip(r2.chunks_exact(4))
+        .zip(r3.chunks_exact(4));
+    let mut acc = [[[0i32; 8]; 2]; MR];
+    for ((((group, a0), a1), a2), a3) in steps {
+        let (lo, hi) = group.split_at(32);
+        let b = [lo, hi].map(|half| <[i8; 32]>::try_from(half).unwrap());
+        for (acc, four) in acc.iter_mut().zip([a0, a1, a2, a3]) {
+            let four = i32::from_le_bytes(four.try_into().unwrap());
+            for (acc, b) in acc.iter_mut().zip(&b) {
+                *acc = dot_four(simd, *acc, four, b);
+            }
+        }
+    }
+    bytemuck::cast(acc)
+}
+
+/// `acc[j] + sum_q u8(x[q]) * b[4j + q]` for the eight lanes, where `x` is four u8 codes in one
+/// word: one `vpdpbusd`.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+fn dot_four(simd: V3Vnni, acc: [i32; 8], four: i32, b: &[i8; 32]) -> [i32; 8] {
+    use std::arch::x86_64::{__m256i, _mm256_dpbusd_epi32};
+    let x = simd.avx._mm256_set1_epi32(four);
+    let b: __m256i = bytemuck::cast(*b);
+    // SAFETY: `pulp` has no safe wrapper for `vpdpbusd`, and the intrinsic may only run where
+    // the CPU has AVX512VL and AVX-512 VNNI. `simd` proves it does: a `V3Vnni` is only made by
+    // `try_new`, which checks every feature it lists. This is the crate's one `unsafe` block.
+    let sum = unsafe { _mm256_dpbusd_epi32(bytemuck::cast(acc), x, b) };
+    bytemuck::cast(sum)
 }
 
 #[cfg(test)]
@@ -829,6 +916,48 @@ mod tests {
             eprintln!("no AVX2 here: only the portable tile runs");
             return;
         };
+        let (sliver, kp, panel) = extreme_tile_operands();
+        let fast = simd.vectorize(|| tile_avx2(simd, &sliver, kp, &panel));
+        assert_eq!(fast, tile_portable(&sliver, kp, &panel));
+    }
+
+    #[cfg(target_arch = "x86_64")]
+    #[test]
+    fn vnni_tile_gives_the_same_integers_as_the_portable_tile() {
+        let Some(simd) = V3Vnni::try_new() else {
+            eprintln!("no AVX-512 VNNI here: the int8 product runs on the AVX2 tile");
+            return;
+        };
+        let (sliver, kp, panel) = extreme_tile_operands();
+        let fast = simd.vectorize(|| tile_vnni(simd, &sliver, kp, &panel));
+        assert_eq!(fast, tile_portable(&sliver, kp, &panel));
+        // And over random codes of the full ranges, on the inner lengths the encoders use.
+        let mut state = 0x9e37_79b9_u32;
+        let mut next = move || {
+            state ^= state << 13;
+            state ^= state >> 17;
+            state ^= state << 5;
+            state
+        };
+        for kp in [4, 384, 1536] {
+            let sliver: Vec<u8> = (0..MR * kp)
+                .map(|_| (next() % (ACT_MAX as u32 + 1)) as u8)
+                .collect();
+            let panel: Vec<i8> = (0..kp * NR)
+                .map(|_| ((next() % (2 * W_MAX as u32 + 1)) as i32 - W_MAX) as i8)
+                .collect();
+            let fast = simd.vectorize(|| tile_vnni(simd, &sliver, kp, &panel));
+            assert_eq!(
+                fast,
+                tile_portable(&sliver, kp, &panel),
+                "inner length {kp}"
+            );
+        }
+    }
+
+    /// Codes at the ends of their ranges for the tile tests.
+    #[cfg(target_arch = "x86_64")]
+    fn extreme_tile_operands() -> (Vec<u8>, usize, Vec<i8>) {
         let kp = 388;
         // Extreme codes: every third activation at ACT_MAX against weights at +-W_MAX, where a
         // saturating int16 step would show (codes past those ranges do saturate: this test
@@ -849,8 +978,7 @@ mod tests {
                 _ => ((i * 17) as i32 % (2 * W_MAX + 1) - W_MAX) as i8,
             })
             .collect();
-        let fast = simd.vectorize(|| tile_avx2(simd, &sliver, kp, &panel));
-        assert_eq!(fast, tile_portable(&sliver, kp, &panel));
+        (sliver, kp, panel)
     }
 
     proptest::proptest! {
