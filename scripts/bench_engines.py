@@ -242,14 +242,25 @@ def loadavg():
 
 
 def cpu_name():
+    """The CPU's model name, family and model, and which of the instruction sets kerf's
+    kernels choose between at run time it has, read from /proc/cpuinfo, so a record says
+    which kernels ran (an earlier record copied its machine description by hand, wrongly)."""
+    fields = {}
     try:
         with open("/proc/cpuinfo") as f:
             for line in f:
-                if line.startswith("model name"):
-                    return line.split(":", 1)[1].strip()
+                if not line.strip():
+                    break
+                key, _, value = line.partition(":")
+                fields[key.strip()] = value.strip()
     except OSError:
-        pass
-    return platform.processor() or "unknown"
+        return platform.processor() or "unknown"
+    flags = set(fields.get("flags", "").split())
+    wanted = [("avx2", "AVX2"), ("fma", "FMA"), ("avx512f", "AVX-512F"), ("avx512vl", "AVX512VL"),
+              ("avx512_vnni", "AVX-512 VNNI"), ("avx_vnni", "AVX-VNNI")]
+    have = ", ".join(name for flag, name in wanted if flag in flags) or "none of AVX2/AVX-512"
+    return (f"{fields.get('model name', 'unknown')} (family {fields.get('cpu family', '?')}, "
+            f"model {fields.get('model', '?')}; {have})")
 
 
 def driver(args):
