@@ -215,6 +215,30 @@ pub fn matmul_i8(
     epilogue: Epilogue<'_>,
     threads: usize,
 ) {
+    matmul_i8_on(Tiles::Fastest, dst, a, rhs, epilogue, threads);
+}
+
+/// Which integer tile a product may use: the fastest the CPU has, or, for the tests that hold
+/// the tiles to the same output bits on one machine, at most the AVX2 one, or only the
+/// portable one.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Tiles {
+    Fastest,
+    #[cfg_attr(not(test), allow(dead_code))]
+    UpToAvx2,
+    #[cfg_attr(not(test), allow(dead_code))]
+    Portable,
+}
+
+/// [`matmul_i8`] on the tiles `tiles` allows.
+fn matmul_i8_on(
+    tiles: Tiles,
+    dst: &mut [f32],
+    a: &[f32],
+    rhs: &PackedI8,
+    epilogue: Epilogue<'_>,
+    threads: usize,
+) {
     let (k, n) = (rhs.k, rhs.n);
     assert!(k > 0, "empty inner dimension");
     assert_eq!(a.len() % k, 0, "activation rows");
@@ -226,7 +250,7 @@ pub fn matmul_i8(
     }
     let run = |scratch: &mut Scratch, (b, d): (usize, &mut [f32])| {
         let rows = &a[b * MC * k..(b * MC * k + d.len() / n * k)];
-        block_i8(d, rows, rhs, epilogue, scratch);
+        block_i8(tiles, d, rows, rhs, epilogue, scratch);
     };
     if threads <= 1 {
         let mut scratch = Scratch::default();
@@ -449,6 +473,7 @@ pub fn split_quantise_row(
 /// block is in cache. The tiles run on the VNNI kernel where the CPU has it, else on the AVX2
 /// kernel where it has AVX2, else on the portable one; all three give the same integers.
 fn block_i8(
+    allowed: Tiles,
     dst: &mut [f32],
     rows: &[f32],
     rhs: &PackedI8,
@@ -460,7 +485,7 @@ fn block_i8(
     let tiles = mc.div_ceil(MR);
     s.codes.clear();
     s.codes.resize(tiles * MR * kp, 0);
-    if !quantise_and_tile_avx2(dst, rows, rhs, s) {
+    if allowed == Tiles::Portable || !quantise_and_tile_avx2(allowed, dst, rows, rhs, s) {
         quantise_block(rows, k, kp, s);
         all_tiles(dst, rhs, s, |sliver, panel| {
             tile_portable(sliver, kp, panel)
@@ -473,9 +498,15 @@ fn block_i8(
 /// [`quantise_block`] and [`all_tiles`] on the VNNI tile or the AVX2 tile, compiled for the
 /// features each needs, when the CPU has them; `false` (nothing done) when it has neither.
 #[cfg(target_arch = "x86_64")]
-fn quantise_and_tile_avx2(dst: &mut [f32], rows: &[f32], rhs: &PackedI8, s: &mut Scratch) -> bool {
+fn quantise_and_tile_avx2(
+    tiles: Tiles,
+    dst: &mut [f32],
+    rows: &[f32],
+    rhs: &PackedI8,
+    s: &mut Scratch,
+) -> bool {
     let (k, kp) = (rhs.k, rhs.k_padded);
-    if let Some(vnni) = V3Vnni::try_new() {
+    if let Some(vnni) = V3Vnni::try_new().filter(|_| tiles == Tiles::Fastest) {
         vnni.vectorize(|| {
             quantise_block(rows, k, kp, s);
             all_tiles(dst, rhs, s, |sliver, panel| {
@@ -499,7 +530,13 @@ fn quantise_and_tile_avx2(dst: &mut [f32], rows: &[f32], rhs: &PackedI8, s: &mut
 }
 
 #[cfg(not(target_arch = "x86_64"))]
-fn quantise_and_tile_avx2(_: &mut [f32], _: &[f32], _: &PackedI8, _: &mut Scratch) -> bool {
+fn quantise_and_tile_avx2(
+    _: Tiles,
+    _: &mut [f32],
+    _: &[f32],
+    _: &PackedI8,
+    _: &mut Scratch,
+) -> bool {
     false
 }
 
@@ -871,6 +908,36 @@ mod tests {
                     );
                 }
             }
+        }
+    }
+
+    #[test]
+    fn every_tile_gives_the_same_output_bits() {
+        // The whole product (quantising, tiles, scaling back, outliers, epilogue) on the
+        // fastest tile this CPU has, on at most AVX2, and on the portable code: the encoder's
+        // vectors must not depend on the machine. Where the CPU lacks VNNI or AVX2, the
+        // fastest tile is one of the others and the comparison still holds.
+        for &(m, k, n) in &[(5, 7, 3), (80, 384, 40), (75, 384, 1536), (9, 1536, 384)] {
+            let a = data(m * k, 11);
+            let w = data(n * k, 12);
+            let bias = data(n, 13);
+            let rhs = PackedI8::from_linear_weight(&w, n, k);
+            let run = |tiles| {
+                let mut out = vec![f32::NAN; m * n];
+                matmul_i8_on(tiles, &mut out, &a, &rhs, Epilogue::BiasGelu(&bias), 2);
+                out.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+            };
+            let fastest = run(Tiles::Fastest);
+            assert_eq!(
+                fastest,
+                run(Tiles::UpToAvx2),
+                "{m}x{k}x{n}: fastest vs AVX2"
+            );
+            assert_eq!(
+                fastest,
+                run(Tiles::Portable),
+                "{m}x{k}x{n}: fastest vs portable"
+            );
         }
     }
 
