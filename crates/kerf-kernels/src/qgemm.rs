@@ -630,6 +630,33 @@ pub fn tile_portable(sliver: &[u8], kp: usize, panel: &[i8]) -> [[i32; NR]; MR] 
     acc
 }
 
+/// A tile's inner steps, four at a time: the panel's two 32-byte halves (eight columns' four
+/// steps each) and each row's four codes as one little-endian word. The four row streams and
+/// the panel are walked in step, so the SIMD tiles' loops carry no index arithmetic or bounds
+/// checks (they cost a tenth of the loop's samples).
+#[inline(always)]
+fn tile_steps<'a>(
+    sliver: &'a [u8],
+    kp: usize,
+    panel: &'a [i8],
+) -> impl Iterator<Item = ([&'a [i8; 32]; 2], [i32; MR])> + 'a {
+    let groups = kp / 4;
+    assert!(sliver.len() >= MR * kp && panel.len() >= groups * 4 * NR);
+    let [r0, r1, r2, r3]: [&[u8]; MR] = std::array::from_fn(|r| &sliver[r * kp..(r + 1) * kp]);
+    let word = |four: &[u8]| i32::from_le_bytes(four.try_into().unwrap());
+    panel[..groups * 4 * NR]
+        .chunks_exact(4 * NR)
+        .zip(r0.chunks_exact(4))
+        .zip(r1.chunks_exact(4))
+        .zip(r2.chunks_exact(4))
+        .zip(r3.chunks_exact(4))
+        .map(move |((((group, a0), a1), a2), a3)| {
+            let (lo, hi) = group.split_at(32);
+            let halves = [lo.try_into().unwrap(), hi.try_into().unwrap()];
+            (halves, [word(a0), word(a1), word(a2), word(a3)])
+        })
+}
+
 /// The same tile with `vpmaddubsw`, `vpmaddwd` and `vpaddd`: eight int32 accumulators, two
 /// panel loads and four broadcasts per four inner steps.
 /// Inlined into `V3::vectorize`, where it is compiled for AVX2.
@@ -638,25 +665,13 @@ pub fn tile_portable(sliver: &[u8], kp: usize, panel: &[i8]) -> [[i32; NR]; MR] 
 pub fn tile_avx2(simd: V3, sliver: &[u8], kp: usize, panel: &[i8]) -> [[i32; NR]; MR] {
     use std::arch::x86_64::__m256i;
     let (avx, avx2) = (simd.avx, simd.avx2);
-    let groups = kp / 4;
-    assert!(sliver.len() >= MR * kp && panel.len() >= groups * 4 * NR);
     let ones = avx._mm256_set1_epi16(1);
     let mut acc = [[avx._mm256_setzero_si256(); 2]; MR];
-    // Four row streams and the panel walked in step, four inner steps at a time, so the loop
-    // carries no index arithmetic or bounds checks (they cost a tenth of the loop's samples).
-    let [r0, r1, r2, r3]: [&[u8]; MR] = std::array::from_fn(|r| &sliver[r * kp..(r + 1) * kp]);
-    let steps = panel[..groups * 4 * NR]
-        .chunks_exact(4 * NR)
-        .zip(r0.chunks_exact(4))
-        .zip(r1.chunks_exact(4))
-        .zip(r2.chunks_exact(4))
-        .zip(r3.chunks_exact(4));
-    for ((((group, a0), a1), a2), a3) in steps {
-        let (lo, hi) = group.split_at(32);
-        let b0: __m256i = bytemuck::cast::<[i8; 32], _>(lo.try_into().unwrap());
-        let b1: __m256i = bytemuck::cast::<[i8; 32], _>(hi.try_into().unwrap());
-        for (acc, four) in acc.iter_mut().zip([a0, a1, a2, a3]) {
-            let x = avx._mm256_set1_epi32(i32::from_le_bytes(four.try_into().unwrap()));
+    for ([lo, hi], fours) in tile_steps(sliver, kp, panel) {
+        let b0: __m256i = bytemuck::cast(*lo);
+        let b1: __m256i = bytemuck::cast(*hi);
+        for (acc, four) in acc.iter_mut().zip(fours) {
+            let x = avx._mm256_set1_epi32(four);
             let p0 = avx2._mm256_madd_epi16(avx2._mm256_maddubs_epi16(x, b0), ones);
             let p1 = avx2._mm256_madd_epi16(avx2._mm256_maddubs_epi16(x, b1), ones);
             acc[0] = avx2._mm256_add_epi32(acc[0], p0);
@@ -704,22 +719,10 @@ pulp::simd_type! {
 #[cfg(target_arch = "x86_64")]
 #[inline(always)]
 pub fn tile_vnni(simd: V3Vnni, sliver: &[u8], kp: usize, panel: &[i8]) -> [[i32; NR]; MR] {
-    let groups = kp / 4;
-    assert!(sliver.len() >= MR * kp && panel.len() >= groups * 4 * NR);
-    let [r0, r1, r2, r3]: [&[u8]; MR] = std::array::from_fn(|r| &sliver[r * kp..(r + 1) * kp]);
-    let steps = panel[..groups * 4 * NR]
-        .chunks_exact(4 * NR)
-        .zip(r0.chunks_exact(4))
-        .zip(r1.chunks_exact(4))
-        .zip(r2.chunks_exact(4))
-        .zip(r3.chunks_exact(4));
     let mut acc = [[[0i32; 8]; 2]; MR];
-    for ((((group, a0), a1), a2), a3) in steps {
-        let (lo, hi) = group.split_at(32);
-        let b = [lo, hi].map(|half| <[i8; 32]>::try_from(half).unwrap());
-        for (acc, four) in acc.iter_mut().zip([a0, a1, a2, a3]) {
-            let four = i32::from_le_bytes(four.try_into().unwrap());
-            for (acc, b) in acc.iter_mut().zip(&b) {
+    for (b, fours) in tile_steps(sliver, kp, panel) {
+        for (acc, four) in acc.iter_mut().zip(fours) {
+            for (acc, b) in acc.iter_mut().zip(b) {
                 *acc = dot_four(simd, *acc, four, b);
             }
         }
@@ -978,47 +981,36 @@ mod tests {
 
     #[cfg(target_arch = "x86_64")]
     #[test]
-    fn avx2_tile_gives_the_same_integers_as_the_portable_tile() {
-        let Some(simd) = V3::try_new() else {
+    fn simd_tiles_give_the_same_integers_as_the_portable_tile() {
+        let (avx2, vnni) = (V3::try_new(), V3Vnni::try_new());
+        if avx2.is_none() {
             eprintln!("no AVX2 here: only the portable tile runs");
-            return;
-        };
-        let (sliver, kp, panel) = extreme_tile_operands();
-        let fast = simd.vectorize(|| tile_avx2(simd, &sliver, kp, &panel));
-        assert_eq!(fast, tile_portable(&sliver, kp, &panel));
-    }
-
-    #[cfg(target_arch = "x86_64")]
-    #[test]
-    fn vnni_tile_gives_the_same_integers_as_the_portable_tile() {
-        let Some(simd) = V3Vnni::try_new() else {
+        }
+        if vnni.is_none() {
             eprintln!("no AVX-512 VNNI here: the int8 product runs on the AVX2 tile");
-            return;
-        };
-        let (sliver, kp, panel) = extreme_tile_operands();
-        let fast = simd.vectorize(|| tile_vnni(simd, &sliver, kp, &panel));
-        assert_eq!(fast, tile_portable(&sliver, kp, &panel));
-        // And over random codes of the full ranges, on the inner lengths the encoders use.
-        let mut state = 0x9e37_79b9_u32;
-        let mut next = move || {
-            state ^= state << 13;
-            state ^= state >> 17;
-            state ^= state << 5;
-            state
-        };
+        }
+        // Extreme codes, then codes spread over the full ranges on the inner lengths the
+        // encoders use (a multiplicative hash of the index, so the test is the same each run).
+        let spread =
+            |i: usize, modulus: i32| ((i as u64 * 0x9e37_79b9_7f4a_7c15) >> 40) as i32 % modulus;
+        let mut cases = vec![extreme_tile_operands()];
         for kp in [4, 384, 1536] {
-            let sliver: Vec<u8> = (0..MR * kp)
-                .map(|_| (next() % (ACT_MAX as u32 + 1)) as u8)
+            let sliver = (0..MR * kp).map(|i| spread(i, ACT_MAX + 1) as u8).collect();
+            let panel = (0..kp * NR)
+                .map(|i| (spread(i + 7, 2 * W_MAX + 1) - W_MAX) as i8)
                 .collect();
-            let panel: Vec<i8> = (0..kp * NR)
-                .map(|_| ((next() % (2 * W_MAX as u32 + 1)) as i32 - W_MAX) as i8)
-                .collect();
-            let fast = simd.vectorize(|| tile_vnni(simd, &sliver, kp, &panel));
-            assert_eq!(
-                fast,
-                tile_portable(&sliver, kp, &panel),
-                "inner length {kp}"
-            );
+            cases.push((sliver, kp, panel));
+        }
+        for (sliver, kp, panel) in &cases {
+            let want = tile_portable(sliver, *kp, panel);
+            if let Some(simd) = avx2 {
+                let got = simd.vectorize(|| tile_avx2(simd, sliver, *kp, panel));
+                assert_eq!(got, want, "AVX2 tile, inner length {kp}");
+            }
+            if let Some(simd) = vnni {
+                let got = simd.vectorize(|| tile_vnni(simd, sliver, *kp, panel));
+                assert_eq!(got, want, "VNNI tile, inner length {kp}");
+            }
         }
     }
 
