@@ -89,7 +89,7 @@ fn to_blob(model: &[u8], key: &[u8], v: &[f32]) -> Vec<u8> {
 
 /// The vector of a stored blob, or `None` when its length or checksum is wrong.
 fn from_blob(model: &[u8], key: &[u8], b: &[u8]) -> Option<Vec<f32>> {
-    if b.len() <= CHECK_BYTES || (b.len() - CHECK_BYTES) % 4 != 0 {
+    if b.len() <= CHECK_BYTES || !(b.len() - CHECK_BYTES).is_multiple_of(4) {
         return None;
     }
     let (data, check) = b.split_at(b.len() - CHECK_BYTES);

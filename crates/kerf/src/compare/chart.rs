@@ -293,7 +293,7 @@ pub fn thousands(n: i64) -> String {
         out.push('-');
     }
     for (i, c) in s.chars().enumerate() {
-        if i > 0 && (s.len() - i) % 3 == 0 {
+        if i > 0 && (s.len() - i).is_multiple_of(3) {
             out.push(',');
         }
         out.push(c);

@@ -385,7 +385,7 @@ impl Family {
 
     /// The hidden width must split evenly into the heads; the error names both keys.
     pub fn check_heads(&self, dims: &Dims) -> Result<(), String> {
-        if dims.hidden % dims.heads == 0 {
+        if dims.hidden.is_multiple_of(dims.heads) {
             return Ok(());
         }
         Err(format!(
