@@ -470,8 +470,9 @@ pub fn split_quantise_row(
 }
 
 /// One block of at most `MC` rows: quantise them, then every tile, then the epilogue while the
-/// block is in cache. The tiles run on the VNNI kernel where the CPU has it, else on the AVX2
-/// kernel where it has AVX2, else on the portable one; all three give the same integers.
+/// block is in cache. The tiles run on the VNNI kernel where the CPU has it (and `allowed`
+/// does), else on the AVX2 kernel where it has AVX2, else on the portable one; all three give
+/// the same integers.
 fn block_i8(
     allowed: Tiles,
     dst: &mut [f32],
@@ -480,64 +481,66 @@ fn block_i8(
     epilogue: Epilogue<'_>,
     s: &mut Scratch,
 ) {
-    let (k, n, kp) = (rhs.k, rhs.n, rhs.k_padded);
+    let (n, kp) = (rhs.n, rhs.k_padded);
     let mc = dst.len() / n;
-    let tiles = mc.div_ceil(MR);
     s.codes.clear();
-    s.codes.resize(tiles * MR * kp, 0);
-    if allowed == Tiles::Portable || !quantise_and_tile_avx2(allowed, dst, rows, rhs, s) {
-        quantise_block(rows, k, kp, s);
-        all_tiles(dst, rhs, s, |sliver, panel| {
+    s.codes.resize(mc.div_ceil(MR) * MR * kp, 0);
+    if !products_on_simd(allowed, dst, rows, rhs, s) {
+        products_on(dst, rows, rhs, s, |sliver, panel| {
             tile_portable(sliver, kp, panel)
         });
-        add_outliers(dst, rhs, &s.outliers);
     }
     epilogue.apply(dst);
 }
 
-/// [`quantise_block`] and [`all_tiles`] on the VNNI tile or the AVX2 tile, compiled for the
-/// features each needs, when the CPU has them; `false` (nothing done) when it has neither.
+/// [`products_on`] with the VNNI tile or the AVX2 tile, compiled for the features each needs,
+/// when the CPU has them and `allowed` lets them run; `false` (nothing done) otherwise.
 #[cfg(target_arch = "x86_64")]
-fn quantise_and_tile_avx2(
-    tiles: Tiles,
+fn products_on_simd(
+    allowed: Tiles,
     dst: &mut [f32],
     rows: &[f32],
     rhs: &PackedI8,
     s: &mut Scratch,
 ) -> bool {
-    let (k, kp) = (rhs.k, rhs.k_padded);
-    if let Some(vnni) = V3Vnni::try_new().filter(|_| tiles == Tiles::Fastest) {
+    let kp = rhs.k_padded;
+    if let Some(vnni) = V3Vnni::try_new().filter(|_| allowed == Tiles::Fastest) {
         vnni.vectorize(|| {
-            quantise_block(rows, k, kp, s);
-            all_tiles(dst, rhs, s, |sliver, panel| {
+            products_on(dst, rows, rhs, s, |sliver, panel| {
                 tile_vnni(vnni, sliver, kp, panel)
-            });
-            add_outliers(dst, rhs, &s.outliers);
+            })
         });
-        return true;
-    }
-    let Some(simd) = V3::try_new() else {
+    } else if let Some(simd) = V3::try_new().filter(|_| allowed != Tiles::Portable) {
+        simd.vectorize(|| {
+            products_on(dst, rows, rhs, s, |sliver, panel| {
+                tile_avx2(simd, sliver, kp, panel)
+            })
+        });
+    } else {
         return false;
-    };
-    simd.vectorize(|| {
-        quantise_block(rows, k, kp, s);
-        all_tiles(dst, rhs, s, |sliver, panel| {
-            tile_avx2(simd, sliver, kp, panel)
-        });
-        add_outliers(dst, rhs, &s.outliers);
-    });
+    }
     true
 }
 
 #[cfg(not(target_arch = "x86_64"))]
-fn quantise_and_tile_avx2(
-    _: Tiles,
-    _: &mut [f32],
-    _: &[f32],
-    _: &PackedI8,
-    _: &mut Scratch,
-) -> bool {
+fn products_on_simd(_: Tiles, _: &mut [f32], _: &[f32], _: &PackedI8, _: &mut Scratch) -> bool {
     false
+}
+
+/// A block's products before its epilogue, on `tile`: quantise the rows, every tile scaled back
+/// into `dst`, then the outliers' f32 products added. Inlined into each SIMD region, so all of
+/// it is compiled for that region's features.
+#[inline(always)]
+fn products_on(
+    dst: &mut [f32],
+    rows: &[f32],
+    rhs: &PackedI8,
+    s: &mut Scratch,
+    tile: impl Fn(&[u8], &[i8]) -> [[i32; NR]; MR],
+) {
+    quantise_block(rows, rhs.k, rhs.k_padded, s);
+    all_tiles(dst, rhs, s, tile);
+    add_outliers(dst, rhs, &s.outliers);
 }
 
 /// Codes, `(lo, step)` and outliers of every row of a block.
